@@ -1,0 +1,304 @@
+"""From raw cell values to clean numbers, and from problems to cell text.
+
+This is the one place that knows what a spreadsheet passes to a formula:
+scalars, 2-D lists with None for blank cells, numbers, numeric text, other
+text, booleans, dates, and error cells (special integers on Windows, text
+such as '#N/A' from other engines). Everything past this module sees only
+clean numpy arrays and floats.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from dataclasses import dataclass
+from itertools import chain
+
+import numpy as np
+
+__all__ = [
+    "InputError",
+    "ERROR_PREFIX",
+    "CleanRange",
+    "clean_lifetimes",
+    "clean_flags",
+    "number",
+    "positive",
+    "accuracy",
+    "confidence",
+    "whole_number",
+    "method_name",
+    "is_missing",
+    "describe",
+]
+
+ERROR_PREFIX = "#TAILSTOP!"
+
+# What Windows Excel passes to Python for an error cell (COM error codes).
+SPREADSHEET_ERROR_CODES = {
+    -2146826281: "#DIV/0!",
+    -2146826246: "#N/A",
+    -2146826259: "#NAME?",
+    -2146826288: "#NULL!",
+    -2146826252: "#NUM!",
+    -2146826265: "#REF!",
+    -2146826273: "#VALUE!",
+    -2146826245: "#GETTING_DATA",
+}
+_ERROR_TEXTS = frozenset(SPREADSHEET_ERROR_CODES.values()) | {
+    "#SPILL!", "#CALC!", "#FIELD!", "#BLOCKED!", "#CONNECT!", "#BUSY!", "#UNKNOWN!", "#EXTERNAL!", "#PYTHON!",
+}
+
+
+class InputError(ValueError):
+    """A problem with what the user typed; its message goes to the cell."""
+
+
+def is_spreadsheet_error(value) -> bool:
+    """True for an error cell as any engine passes it (code or text)."""
+    if type(value) is int:
+        return value in SPREADSHEET_ERROR_CODES
+    if isinstance(value, str):
+        text = value.strip().upper()
+        return text in _ERROR_TEXTS or text.startswith(ERROR_PREFIX)
+    return False
+
+
+def is_missing(value) -> bool:
+    """An optional argument left out: None, an empty cell or empty text."""
+    if isinstance(value, (list, tuple)):
+        cells = list(chain.from_iterable(r if isinstance(r, (list, tuple)) else [r] for r in value))
+        return len(cells) == 0 or (len(cells) == 1 and is_missing(cells[0]))
+    return value is None or (isinstance(value, str) and value.strip() == "")
+
+
+def describe(value) -> str:
+    """A short description of a bad cell value, for a message."""
+    if value is None:
+        return "is blank"
+    if is_spreadsheet_error(value):
+        if isinstance(value, str) and value.strip().upper().startswith(ERROR_PREFIX):
+            return "holds an error from another tailstop formula"
+        return "holds a spreadsheet error"
+    if isinstance(value, bool):
+        return f"holds {'TRUE' if value else 'FALSE'}, not a number"
+    if isinstance(value, (_dt.datetime, _dt.date, _dt.time, _dt.timedelta)):
+        return "holds a date or time, not a number of hours or cycles"
+    if isinstance(value, str):
+        shown = value if len(value) <= 20 else value[:17] + "..."
+        return f"holds text {shown!r}"
+    if isinstance(value, (int, float, np.number)):
+        number_value = float(value)
+        if math.isnan(number_value):
+            return "holds NaN, not a number"
+        if math.isinf(number_value):
+            return "holds an infinite value"
+        if number_value == 0:
+            return "holds 0; lifetimes must be > 0"
+        if number_value < 0:
+            return f"holds {number_value:g}; lifetimes must be > 0"
+        return f"holds {number_value:g}"
+    return f"holds a value of type {type(value).__name__}"
+
+
+def _as_number(value):
+    """float for a number or numeric text; None if it is not one."""
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        if type(value) is int and value in SPREADSHEET_ERROR_CODES:
+            return None
+        try:
+            return float(value)
+        except OverflowError:
+            return None
+    if isinstance(value, str):
+        text = value.strip().replace("\u00a0", "")
+        if not text or text.lower() in {"nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity"}:
+            return None
+        try:
+            return float(text)
+        except ValueError:
+            return None
+    return None
+
+
+def _rows_of(values):
+    """The range as a list of rows (a scalar is a 1×1 range, a flat list a column)."""
+    if isinstance(values, np.ndarray):
+        values = values.tolist()
+    if not isinstance(values, (list, tuple)):
+        return [[values]]
+    return [row if isinstance(row, (list, tuple)) else [row] for row in values]
+
+
+@dataclass(frozen=True)
+class CleanRange:
+    """The numbers of a range, with the (0-based) row each came from.
+
+    Attributes
+    ----------
+    values : ndarray of float
+        The non-blank cells in reading order (row by row).
+    rows : ndarray of int
+        Row of each value, counted from the top of the range.
+    n_rows : int
+        Number of rows in the range (blank ones included).
+    """
+
+    values: np.ndarray
+    rows: np.ndarray
+    n_rows: int
+
+
+def _position(rows, flat_index, single_column):
+    if single_column:
+        return f"row {flat_index + 1}"
+    seen = 0
+    for r, row in enumerate(rows):
+        if flat_index < seen + len(row):
+            return f"row {r + 1}, column {flat_index - seen + 1}"
+        seen += len(row)
+    return f"cell {flat_index + 1}"
+
+
+def _flat_cells(values):
+    rows = _rows_of(values)
+    single_column = all(len(row) == 1 for row in rows)
+    flat = [row[0] for row in rows] if single_column else list(chain.from_iterable(rows))
+    return rows, flat, single_column
+
+
+def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
+    """Positive finite lifetimes from a range; blanks are skipped.
+
+    Raises
+    ------
+    InputError
+        Naming the first offending cell: "row 17 holds text 'n/a'".
+    """
+    rows, flat, single_column = _flat_cells(values)
+    index = [i for i, v in enumerate(flat) if v is not None]
+    cells = [flat[i] for i in index]
+    kinds = set(map(type, cells))
+    numbers = None
+    if kinds <= {float, int} and not (int in kinds and any(type(v) is int and v in SPREADSHEET_ERROR_CODES for v in cells)):
+        try:
+            numbers = np.array(cells, dtype=float)
+        except OverflowError:
+            numbers = None
+    if numbers is None:
+        converted = map(_as_number, cells)
+        numbers = np.array([np.nan if v is None else v for v in converted], dtype=float)
+    good = np.isfinite(numbers) & (numbers > 0)
+    if not good.all():
+        first = int(np.argmin(good))
+        raise InputError(f"{name}: {_position(rows, index[first], single_column)} {describe(cells[first])}")
+    if numbers.size < minimum:
+        raise InputError(f"{name}: needs at least {minimum} lifetimes (found {numbers.size})")
+    row_of = np.asarray(index, dtype=np.int64) if single_column else _row_numbers(rows, index)
+    return CleanRange(values=numbers, rows=row_of, n_rows=len(rows))
+
+
+def _row_numbers(rows, flat_index):
+    starts = np.cumsum([0] + [len(row) for row in rows])
+    return np.searchsorted(starts, np.asarray(flat_index, dtype=np.int64), side="right") - 1
+
+
+def clean_flags(values, n_rows, name="survivors"):
+    """A range of yes/no flags, one per row; blank, 0, FALSE, 'no' are no."""
+    rows, flat, single_column = _flat_cells(values)
+    if not single_column:
+        raise InputError(f"{name}: must be a single column")
+    if len(flat) != n_rows:
+        raise InputError(f"{name}: must have as many rows as the observations ({n_rows}, got {len(flat)})")
+    flags = np.zeros(len(flat), dtype=bool)
+    for i, v in enumerate(flat):
+        if is_missing(v):
+            continue
+        if isinstance(v, bool):
+            flags[i] = v
+            continue
+        as_number = _as_number(v)
+        if as_number is not None and as_number in (0.0, 1.0):
+            flags[i] = as_number == 1.0
+            continue
+        text = v.strip().lower() if isinstance(v, str) else None
+        if text in _YES:
+            flags[i] = True
+        elif text in _NO:
+            flags[i] = False
+        else:
+            raise InputError(f"{name}: row {i + 1} {describe(v)}; use 1/0, TRUE/FALSE or yes/no")
+    return flags
+
+
+_YES = {"yes", "y", "true", "survivor", "survived", "s"}
+_NO = {"no", "n", "false", "failed", "f"}
+
+
+def number(value, name) -> float:
+    """A single finite number from a cell (numeric text accepted)."""
+    if isinstance(value, (list, tuple, np.ndarray)):
+        cells = list(chain.from_iterable(_rows_of(value)))
+        if len(cells) != 1:
+            raise InputError(f"{name} must be a single cell (got a range of {len(cells)} cells)")
+        value = cells[0]
+    if is_missing(value):
+        raise InputError(f"{name} is blank; enter a number")
+    result = _as_number(value)
+    if result is None or not math.isfinite(result):
+        raise InputError(f"{name} {describe(value)}; enter a number")
+    return result
+
+
+def positive(value, name, unit="") -> float:
+    """A number > 0."""
+    result = number(value, name)
+    if not result > 0:
+        raise InputError(f"{name} must be > 0{unit} (got {result:g})")
+    return result
+
+
+def accuracy(value) -> float:
+    """The accuracy factor d > 1 (odds known within a factor d)."""
+    result = number(value, "accuracy")
+    if not result > 1:
+        raise InputError(f"accuracy must be > 1, e.g. 1.5 for odds within a factor 1.5 (got {result:g})")
+    return result
+
+
+def confidence(value) -> float:
+    """A confidence level strictly between 0 and 1 (95 % is 0.95)."""
+    result = number(value, "confidence")
+    if 1 < result < 100:
+        raise InputError(f"confidence must be between 0 and 1; for {result:g} % enter {result / 100:g}")
+    if not 0 < result < 1:
+        raise InputError(f"confidence must be between 0 and 1, e.g. 0.95 (got {result:g})")
+    return result
+
+
+def whole_number(value, name, minimum=1, maximum=None) -> int:
+    """A whole number in [minimum, maximum]."""
+    result = number(value, name)
+    if result != math.floor(result):
+        raise InputError(f"{name} must be a whole number (got {result:g})")
+    if result < minimum:
+        raise InputError(f"{name} must be at least {minimum} (got {result:g})")
+    if maximum is not None and result > maximum:
+        raise InputError(f"{name} must be at most {maximum:,} (got {result:g})")
+    return int(result)
+
+
+def method_name(value, choices, default="pass-fail") -> str:
+    """A method name, forgiving case, spaces and underscores."""
+    if is_missing(value):
+        return default
+    if isinstance(value, (list, tuple)):
+        value = list(chain.from_iterable(_rows_of(value)))[0]
+    if not isinstance(value, str):
+        raise InputError(f"method must be one of {', '.join(choices)}")
+    text = "-".join(value.strip().lower().replace("_", " ").replace("-", " ").split())
+    if text not in choices:
+        shown = value if len(value) <= 20 else value[:17] + "..."
+        raise InputError(f"method must be one of {', '.join(choices)} (got {shown!r})")
+    return text

@@ -1,0 +1,300 @@
+"""The three ways of estimating p = P(X > threshold) from a test log (METHOD.md §3).
+
+* ``known-shape`` — the gamma shape a is given; the scale is estimated by ML
+  (ŝ = mean / a) and p̂ = Q(a, c/ŝ).
+* ``pass-fail`` — p̂ is the share of units beyond the threshold. Needs no
+  lifetime model; a unit taken off test at or beyond the threshold without
+  failing (a survivor) counts as beyond it.
+* ``fitted-shape`` — shape and scale both by gamma ML; p̂ = Q(â, c/ŝ).
+
+Every method works from the sufficient statistics only, vectorized, so the
+same code gives the estimate for one sample or for every prefix of a log
+at once (``SufficientStatistics.running``). Where an estimate does not exist
+for a prefix (no exceedance yet, all values equal) the vectorized results are
+NaN or ±inf; ``estimate_tail`` turns those cases into clear errors.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import accuracy as _accuracy
+from .fit import shape_from_log_ratio
+from .tail import TailProbability, tail_probability, tail_probability_standard
+from .variance import sigma2_fitted_shape, sigma2_known_shape
+
+__all__ = [
+    "METHOD_NAMES",
+    "SufficientStatistics",
+    "TailEstimate",
+    "estimate_from_statistics",
+    "estimate_tail",
+    "model_sigma2",
+    "pass_fail_sigma2_from_p",
+    "get_method",
+]
+
+
+@dataclass(frozen=True)
+class SufficientStatistics:
+    """What the estimators need from a sample (or from every prefix of a log).
+
+    Attributes
+    ----------
+    n : ndarray
+        Number of units.
+    sum_x : ndarray
+        Σx over the units.
+    log_ratio : ndarray
+        log(mean x) - mean(log x), the statistic of the gamma shape.
+    exceedances : ndarray
+        Number of units with x > threshold, survivors included.
+    """
+
+    n: np.ndarray
+    sum_x: np.ndarray
+    log_ratio: np.ndarray
+    exceedances: np.ndarray
+
+    @classmethod
+    def of(cls, observations, threshold, survivors=None) -> "SufficientStatistics":
+        """Statistics of one sample; ``survivors`` flags units stopped without failing."""
+        x = np.asarray(observations, dtype=float).ravel()
+        n = x.size
+        mean = x.mean() if n else np.nan
+        with np.errstate(divide="ignore", invalid="ignore"):
+            log_ratio = np.log(mean) - np.mean(np.log(x)) if n else np.nan
+            if n and log_ratio < 1e-3:
+                # values close together: avoid the cancellation of the two logs
+                log_ratio = -np.mean(np.log1p((x - mean) / mean))
+        return cls(
+            n=np.asarray(n),
+            sum_x=np.asarray(x.sum()),
+            log_ratio=np.asarray(log_ratio),
+            exceedances=np.asarray(_exceeds(x, threshold, survivors).sum()),
+        )
+
+    @classmethod
+    def running(cls, observations, threshold, survivors=None) -> "SufficientStatistics":
+        """Statistics of every prefix x[:1], x[:2], …, from running sums (O(n))."""
+        x = np.asarray(observations, dtype=float).ravel()
+        n = np.arange(1, x.size + 1)
+        # Sums of logs relative to a reference value keep the two terms of the
+        # log-ratio small, so their difference keeps its digits.
+        reference = x[0] if x.size else 1.0
+        scaled = x / reference
+        with np.errstate(divide="ignore", invalid="ignore"):
+            log_ratio = np.log(np.cumsum(scaled) / n) - np.cumsum(np.log(scaled)) / n
+        return cls(
+            n=n,
+            sum_x=np.cumsum(x),
+            log_ratio=np.maximum(log_ratio, 0.0),
+            exceedances=np.cumsum(_exceeds(x, threshold, survivors)),
+        )
+
+
+def _exceeds(x, threshold, survivors):
+    beyond = x > threshold
+    if survivors is not None:
+        beyond = beyond | np.asarray(survivors, dtype=bool).ravel()
+    return beyond
+
+
+@dataclass(frozen=True)
+class TailEstimate:
+    """Estimate of p = P(X > threshold) with its plug-in asymptotic variance.
+
+    Attributes
+    ----------
+    method : str
+    n : ndarray
+        Units used.
+    tail : TailProbability
+        p̂ with ``log_p``, ``log_cdf``, ``log_odds``.
+    sigma2 : ndarray
+        Plug-in σ̂² = n·Var(log q̂) (METHOD.md §3).
+    shape, scale : ndarray or None
+        The gamma parameters used (None for pass-fail).
+    """
+
+    method: str
+    n: np.ndarray
+    tail: TailProbability
+    sigma2: np.ndarray
+    shape: np.ndarray | None = None
+    scale: np.ndarray | None = None
+
+    @property
+    def p(self):
+        return self.tail.p
+
+    @property
+    def log_odds(self):
+        return self.tail.log_odds
+
+    @property
+    def odds(self):
+        return self.tail.odds
+
+    def odds_interval(self, accuracy) -> _accuracy.Interval:
+        """[q̂/d, q̂·d]."""
+        return _accuracy.odds_interval(self.log_odds, accuracy)
+
+    def probability_interval(self, accuracy) -> _accuracy.Interval:
+        """[q̂/(d + q̂), d·q̂/(1 + d·q̂)]."""
+        return _accuracy.probability_interval(self.log_odds, accuracy)
+
+    def units_required(self, accuracy, confidence):
+        """Plug-in n̂* = (z / log d)² σ̂²_n, real-valued."""
+        return _accuracy.units_for_accuracy(self.sigma2, accuracy, confidence)
+
+
+class _KnownShape:
+    name = "known-shape"
+    needs_shape = True
+    uses_lifetimes = True
+
+    def estimate(self, statistics, threshold, shape):
+        shape = np.asarray(shape, dtype=float)
+        scale = statistics.sum_x / (statistics.n * shape)
+        t = threshold / scale
+        return TailEstimate(
+            self.name, statistics.n, tail_probability_standard(shape, t), sigma2_known_shape(shape, t),
+            shape=np.broadcast_to(shape, np.shape(t)), scale=scale,
+        )
+
+    def model_sigma2(self, shape, t):
+        return sigma2_known_shape(shape, t)
+
+
+class _PassFail:
+    name = "pass-fail"
+    needs_shape = False
+    uses_lifetimes = False
+
+    def estimate(self, statistics, threshold, shape=None):
+        n = np.asarray(statistics.n, dtype=float)
+        k = np.asarray(statistics.exceedances, dtype=float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            p = k / n
+            log_p = np.log(k) - np.log(n)
+            log_cdf = np.log(n - k) - np.log(n)
+            sigma2 = n * n / (k * (n - k))
+        return TailEstimate(self.name, statistics.n, TailProbability(p, log_p, log_cdf), sigma2)
+
+    def model_sigma2(self, shape, t):
+        tail = tail_probability_standard(shape, t)
+        return np.exp(-tail.log_p - tail.log_cdf)
+
+
+class _FittedShape:
+    name = "fitted-shape"
+    needs_shape = False
+    uses_lifetimes = True
+
+    def estimate(self, statistics, threshold, shape=None):
+        fitted = shape_from_log_ratio(statistics.log_ratio)
+        valid = np.isfinite(fitted)
+        safe_shape = np.where(valid, fitted, 1.0)
+        scale = statistics.sum_x / (statistics.n * safe_shape)
+        t = threshold / scale
+        tail = tail_probability_standard(safe_shape, t)
+        nan = np.where(valid, 0.0, np.nan)
+        return TailEstimate(
+            self.name, statistics.n,
+            TailProbability(tail.p + nan, tail.log_p + nan, tail.log_cdf + nan),
+            sigma2_fitted_shape(safe_shape, t) + nan,
+            shape=fitted, scale=scale + nan,
+        )
+
+    def model_sigma2(self, shape, t):
+        return sigma2_fitted_shape(shape, t)
+
+
+_METHODS = {m.name: m for m in (_KnownShape(), _PassFail(), _FittedShape())}
+METHOD_NAMES = tuple(_METHODS)
+
+
+def get_method(name):
+    """The method object for a name; ValueError listing the choices otherwise."""
+    try:
+        return _METHODS[name]
+    except (KeyError, TypeError):
+        raise ValueError(f"method must be one of {', '.join(METHOD_NAMES)} (got {name!r})") from None
+
+
+def estimate_from_statistics(statistics, threshold, method="pass-fail", shape=None) -> TailEstimate:
+    """Vectorized estimate over (possibly many) sets of sufficient statistics, unchecked."""
+    return get_method(method).estimate(statistics, threshold, shape)
+
+
+def estimate_tail(observations, threshold, method="pass-fail", shape=None, survivors=None) -> TailEstimate:
+    """Estimate p = P(X > threshold) from one sample of lifetimes.
+
+    Parameters
+    ----------
+    observations : array_like
+        Positive lifetimes, one per unit.
+    threshold : float
+        The threshold c > 0, in the unit of the lifetimes.
+    method : {'pass-fail', 'known-shape', 'fitted-shape'}
+    shape : float, optional
+        The gamma shape; required by ``known-shape`` only.
+    survivors : array_like of bool, optional
+        Units taken off test at or beyond the threshold without failing
+        (``pass-fail`` only): they count as beyond the threshold.
+
+    Raises
+    ------
+    ValueError
+        With a message saying what to change, when the estimate does not
+        exist for these data.
+    """
+    model = get_method(method)
+    x = np.asarray(observations, dtype=float).ravel()
+    _check_sample(x, threshold, model, shape, survivors)
+    statistics = SufficientStatistics.of(x, threshold, survivors)
+    if model.name == "fitted-shape" and not statistics.log_ratio > 1e-13:
+        raise ValueError("all lifetimes are equal (or nearly): the gamma shape cannot be estimated")
+    result = model.estimate(statistics, threshold, shape)
+    return _as_scalars(result)
+
+
+def _check_sample(x, threshold, model, shape, survivors):
+    if not (np.isfinite(threshold) and threshold > 0):
+        raise ValueError(f"threshold must be a positive number (got {threshold!r})")
+    if not np.all(np.isfinite(x) & (x > 0)):
+        raise ValueError("lifetimes must be positive finite numbers")
+    if x.size < 2:
+        raise ValueError(f"at least 2 units are needed (got {x.size})")
+    if model.needs_shape and (shape is None or not (np.isfinite(shape) and shape > 0)):
+        raise ValueError("known-shape needs the gamma shape, a positive number")
+    if survivors is not None and model.uses_lifetimes and np.any(survivors):
+        raise ValueError(f"survivors (units stopped without failing) can only be used with pass-fail, not {model.name}")
+
+
+def _as_scalars(result: TailEstimate) -> TailEstimate:
+    def scalar(v):
+        return None if v is None else float(np.asarray(v))
+
+    return TailEstimate(
+        result.method, int(result.n),
+        TailProbability(scalar(result.tail.p), scalar(result.tail.log_p), scalar(result.tail.log_cdf)),
+        scalar(result.sigma2), scalar(result.shape), scalar(result.scale),
+    )
+
+
+def model_sigma2(method, threshold, shape, scale):
+    """σ² under an assumed gamma model (planning before any data), vectorized."""
+    tail_probability(threshold, shape, scale)  # validates the parameters
+    t = np.asarray(threshold, dtype=float) / np.asarray(scale, dtype=float)
+    return get_method(method).model_sigma2(np.asarray(shape, dtype=float), t)
+
+
+def pass_fail_sigma2_from_p(p):
+    """σ² = 1 / (p (1 - p)) for pass-fail planning from a guessed probability."""
+    p = np.asarray(p, dtype=float)
+    if not np.all((p > 0) & (p < 1)):
+        raise ValueError("the guessed probability must be strictly between 0 and 1")
+    return 1.0 / (p * (1.0 - p))

@@ -1,0 +1,163 @@
+"""Formulas: exceedance probability, estimates, fixed-accuracy bounds, planning sizes, gamma fit."""
+from __future__ import annotations
+
+from . import accuracy as _accuracy
+from . import cells
+from .fit import fit_gamma, gamma_fit_pvalue
+from .formula import formula
+from .methods import METHOD_NAMES, estimate_tail, model_sigma2, pass_fail_sigma2_from_p
+from .tail import tail_probability
+
+# Help texts shared by several formulas (the spreadsheet shows them per argument).
+HELP = {
+    "observations": "Range of lifetimes, one unit per cell (hours, cycles, ...); blank cells are skipped",
+    "threshold": "The threshold c > 0 (mission time, warranty limit), same unit as the lifetimes",
+    "shape": "Gamma shape a > 0 (dimensionless)",
+    "scale": "Gamma scale s > 0, same unit as the lifetimes (mean = shape * scale)",
+    "accuracy": "Accuracy factor d > 1: the odds are to be known within a factor d (e.g. 1.5)",
+    "confidence": "Confidence level between 0 and 1, e.g. 0.95",
+    "method": "Optional: pass-fail (default), known-shape or fitted-shape",
+    "known_shape": "Optional: the gamma shape, required when method is known-shape",
+    "units": "Number of units tested (a whole number >= 1)",
+    "p_guess": "Guessed probability of exceeding the threshold, between 0 and 1",
+}
+
+
+def clean_method_and_shape(method, shape):
+    """The method name and, for known-shape, its shape; checked together."""
+    name = cells.method_name(method, METHOD_NAMES)
+    if name == "known-shape":
+        if cells.is_missing(shape):
+            raise cells.InputError("known-shape needs the gamma shape as the last argument")
+        return name, cells.positive(shape, "shape")
+    return name, None
+
+
+def estimate_from_cells(observations, threshold, method, shape):
+    """The core estimate for formula arguments as a spreadsheet passes them."""
+    name, shape_value = clean_method_and_shape(method, shape)
+    lifetimes = cells.clean_lifetimes(observations, minimum=2).values
+    c = cells.positive(threshold, "threshold")
+    return estimate_tail(lifetimes, c, name, shape_value)
+
+
+def _needs_both_sides(estimate):
+    if estimate.method == "pass-fail" and not 0 < estimate.p < 1:
+        side = "exceeded" if estimate.p == 0 else "stayed below"
+        raise cells.InputError(f"no unit {side} the threshold yet; bounds need units on both sides")
+
+
+@formula(threshold=HELP["threshold"], shape=HELP["shape"], scale=HELP["scale"])
+def TAIL_PROB(threshold, shape, scale):
+    """Probability that a gamma lifetime exceeds the threshold, P(X > threshold), accurate in the far tail."""
+    c = cells.number(threshold, "threshold")
+    if c < 0:
+        raise cells.InputError(f"threshold must be >= 0 (got {c:g})")
+    return tail_probability(c, cells.positive(shape, "shape"), cells.positive(scale, "scale")).p
+
+
+@formula(
+    ranges=("observations",), observations=HELP["observations"], threshold=HELP["threshold"],
+    method=HELP["method"], shape=HELP["known_shape"],
+)
+def TAIL_PROB_EST(observations, threshold, method=None, shape=None):
+    """Estimated probability that a unit outlasts the threshold, from the test log."""
+    return estimate_from_cells(observations, threshold, method, shape).p
+
+
+@formula(
+    ranges=("observations",), returns="row", observations=HELP["observations"], threshold=HELP["threshold"],
+    accuracy=HELP["accuracy"], method=HELP["method"], shape=HELP["known_shape"],
+)
+def TAIL_PROB_BOUNDS(observations, threshold, accuracy, method=None, shape=None):
+    """Fixed-accuracy bounds (low, high) for the probability of outlasting the threshold; a 1x2 row."""
+    d = cells.accuracy(accuracy)
+    estimate = estimate_from_cells(observations, threshold, method, shape)
+    _needs_both_sides(estimate)
+    interval = estimate.probability_interval(d)
+    return [[interval.low, interval.high]]
+
+
+@formula(
+    ranges=("observations",), returns="row", observations=HELP["observations"], threshold=HELP["threshold"],
+    accuracy=HELP["accuracy"], method=HELP["method"], shape=HELP["known_shape"],
+)
+def TAIL_ODDS_BOUNDS(observations, threshold, accuracy, method=None, shape=None):
+    """Fixed-accuracy bounds (odds/d, odds*d) for the odds of outlasting the threshold; a 1x2 row."""
+    d = cells.accuracy(accuracy)
+    estimate = estimate_from_cells(observations, threshold, method, shape)
+    _needs_both_sides(estimate)
+    interval = estimate.odds_interval(d)
+    return [[interval.low, interval.high]]
+
+
+def planning_sigma2(threshold, shape, scale, method):
+    """σ² under guessed model parameters, from formula arguments."""
+    name = cells.method_name(method, METHOD_NAMES)
+    c = cells.positive(threshold, "threshold")
+    a = cells.positive(shape, "shape")
+    s = cells.positive(scale, "scale")
+    sigma2 = float(model_sigma2(name, c, a, s))
+    if not 0 < sigma2 < float("inf"):
+        raise cells.InputError("the guessed model puts (almost) every unit on one side of the threshold; "
+                               "no finite number of units reaches this accuracy")
+    return sigma2
+
+
+@formula(
+    threshold=HELP["threshold"], shape="Guessed gamma shape a > 0", scale="Guessed gamma scale s > 0, unit of the lifetimes",
+    accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
+)
+def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None):
+    """Units a fixed-size test needs for the accuracy at the confidence, from guessed gamma parameters."""
+    d, level = cells.accuracy(accuracy), cells.confidence(confidence)
+    sigma2 = planning_sigma2(threshold, shape, scale, method)
+    return int(_accuracy.whole_units(_accuracy.units_for_accuracy(sigma2, d, level)))
+
+
+@formula(p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"])
+def UNITS_REQUIRED_FROM_P(p_guess, accuracy, confidence):
+    """Units a fixed-size pass-fail test needs for the accuracy at the confidence, from a guessed probability."""
+    p = cells.number(p_guess, "p_guess")
+    if not 0 < p < 1:
+        raise cells.InputError(f"p_guess must be strictly between 0 and 1 (got {p:g})")
+    d, level = cells.accuracy(accuracy), cells.confidence(confidence)
+    return int(_accuracy.whole_units(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level)))
+
+
+@formula(
+    units=HELP["units"], threshold=HELP["threshold"], shape="Guessed gamma shape a > 0",
+    scale="Guessed gamma scale s > 0, unit of the lifetimes", confidence=HELP["confidence"], method=HELP["method"],
+)
+def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None):
+    """Accuracy factor d that a fixed-size test of this many units reaches at the confidence."""
+    n = cells.whole_number(units, "units", minimum=1)
+    level = cells.confidence(confidence)
+    return _accuracy.accuracy_for_units(planning_sigma2(threshold, shape, scale, method), n, level)
+
+
+def _fit(observations):
+    try:
+        return fit_gamma(cells.clean_lifetimes(observations, minimum=2).values)
+    except ValueError as problem:
+        raise cells.InputError(str(problem)) from None
+
+
+@formula(ranges=("observations",), observations=HELP["observations"])
+def GAMMA_FIT_SHAPE(observations):
+    """Gamma shape fitted by maximum likelihood to the lifetimes (location 0)."""
+    return _fit(observations).shape
+
+
+@formula(ranges=("observations",), observations=HELP["observations"])
+def GAMMA_FIT_SCALE(observations):
+    """Gamma scale fitted by maximum likelihood to the lifetimes, in their unit (location 0)."""
+    return _fit(observations).scale
+
+
+@formula(ranges=("observations",), observations=HELP["observations"])
+def GAMMA_FIT_PVALUE(observations):
+    """Goodness-of-fit p-value of the gamma model (Anderson-Darling, estimated parameters); small means a poor fit."""
+    values = cells.clean_lifetimes(observations, minimum=2).values
+    _fit(values)
+    return gamma_fit_pvalue(values)
