@@ -77,27 +77,33 @@ class SufficientStatistics:
 
     @classmethod
     def running(cls, observations, threshold, survivors=None) -> "SufficientStatistics":
-        """Statistics of every prefix x[:1], x[:2], …, from running sums (O(n))."""
-        x = np.asarray(observations, dtype=float).ravel()
-        n = np.arange(1, x.size + 1)
+        """Statistics of every prefix x[..., :1], x[..., :2], …, from running sums (O(n)).
+
+        ``observations`` may be 1-D (one log) or 2-D (one log per row, e.g.
+        simulated replications); prefixes run along the last axis.
+        """
+        x = np.asarray(observations, dtype=float)
+        if x.ndim == 0:
+            x = x.reshape(1)
+        n = np.arange(1, x.shape[-1] + 1)
         # Sums of logs relative to a reference value keep the two terms of the
         # log-ratio small, so their difference keeps its digits.
-        reference = x[0] if x.size else 1.0
+        reference = x[..., :1] if x.shape[-1] else 1.0
         scaled = x / reference
         with np.errstate(divide="ignore", invalid="ignore"):
-            log_ratio = np.log(np.cumsum(scaled) / n) - np.cumsum(np.log(scaled)) / n
+            log_ratio = np.log(np.cumsum(scaled, axis=-1) / n) - np.cumsum(np.log(scaled), axis=-1) / n
         return cls(
-            n=n,
-            sum_x=np.cumsum(x),
+            n=np.broadcast_to(n, x.shape),
+            sum_x=np.cumsum(x, axis=-1),
             log_ratio=np.maximum(log_ratio, 0.0),
-            exceedances=np.cumsum(_exceeds(x, threshold, survivors)),
+            exceedances=np.cumsum(_exceeds(x, threshold, survivors), axis=-1),
         )
 
 
 def _exceeds(x, threshold, survivors):
     beyond = x > threshold
     if survivors is not None:
-        beyond = beyond | np.asarray(survivors, dtype=bool).ravel()
+        beyond = beyond | np.asarray(survivors, dtype=bool).reshape(beyond.shape)
     return beyond
 
 

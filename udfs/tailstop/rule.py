@@ -1,0 +1,72 @@
+"""The purely sequential fixed-accuracy stopping rule (METHOD.md §5), vectorized.
+
+After each unit n >= m (the pilot) the rule recomputes σ̂²_n from all n units
+and stops at the first n with n >= (z / log d)² σ̂²_n.
+
+Degenerate prefixes never stop:
+
+* pass-fail: σ̂² uses the regularized plug-in p̃ = (S + ½) / (n + 1) (S the
+  number of units beyond the threshold), which is finite for every S; in
+  addition the rule never stops while every unit so far is on one side of
+  the threshold (S = 0 or S = n);
+* fitted-shape: while all values so far are equal the ML shape does not
+  exist (σ̂² is NaN) and the rule continues;
+* any σ̂² that is NaN or infinite means "continue".
+
+References: Chow, Y. S. & Robbins, H. (1965), Ann. Math. Statist. 36,
+457–462; Banerjee, S. & Mukhopadhyay, N. (2016), Ann. Inst. Stat. Math. 68,
+541–570.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from .accuracy import critical_value
+from .methods import estimate_from_statistics
+
+__all__ = ["MIN_PILOT", "rule_sigma2", "boundary_factor", "is_check_point", "stops"]
+
+MIN_PILOT = 2
+
+
+def regularized_pass_fail_sigma2(n, exceedances):
+    """σ̃² = 1 / (p̃ (1 - p̃)) with p̃ = (S + ½) / (n + 1)."""
+    n = np.asarray(n, dtype=float)
+    p_tilde = (np.asarray(exceedances, dtype=float) + 0.5) / (n + 1.0)
+    return 1.0 / (p_tilde * (1.0 - p_tilde))
+
+
+def rule_sigma2(statistics, threshold, method, shape=None):
+    """σ̂²_n as the stopping rule uses it, for every set of statistics (NaN = undefined)."""
+    if method == "pass-fail":
+        return regularized_pass_fail_sigma2(statistics.n, statistics.exceedances)
+    with np.errstate(all="ignore"):
+        return np.asarray(estimate_from_statistics(statistics, threshold, method, shape).sigma2, dtype=float)
+
+
+def boundary_factor(accuracy, confidence):
+    """(z / log d)²: the rule stops when n >= boundary_factor · σ̂²_n."""
+    return float((critical_value(confidence) / np.log(accuracy)) ** 2)
+
+
+def is_check_point(n, pilot, check_every=1):
+    """True at the units where the rule is consulted: n = pilot, pilot + k, pilot + 2k, …"""
+    n = np.asarray(n)
+    return (n >= pilot) & ((n - pilot) % check_every == 0)
+
+
+def stops(statistics, threshold, accuracy, confidence, pilot, method, shape=None, check_every=1):
+    """Boolean array: does the rule say STOP at each set of statistics (each prefix)?
+
+    This is the stop condition at each n on its own; the decision column is
+    STOP at the first True and PAST STOP after it.
+    """
+    sigma2 = rule_sigma2(statistics, threshold, method, shape)
+    n = np.asarray(statistics.n)
+    with np.errstate(invalid="ignore"):
+        enough = n >= boundary_factor(accuracy, confidence) * sigma2
+    enough &= np.isfinite(sigma2)
+    if method == "pass-fail":
+        s = np.asarray(statistics.exceedances)
+        enough &= (s > 0) & (s < n)
+    return enough & is_check_point(n, pilot, check_every)
