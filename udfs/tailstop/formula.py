@@ -45,11 +45,13 @@ def apply_xlwings(function, spec: FormulaSpec, func=None, arg=None):
     """Apply xlwings' ``func``/``arg`` decorators as the spec says; returns the function."""
     func = func or xw.func
     arg = arg or xw.arg
-    decorated = func(category=CATEGORY)(function)
+    decorated = function
     for name, help_text in spec.argument_help.items():
         options = {"ndim": 2} if name in spec.ranges else {}
         decorated = arg(name, doc=help_text, **options)(decorated)
-    return decorated
+    # func last, as @xw.func stands on top in xlwings' own examples: every
+    # xlwings.udfs.xlarg call re-runs xlfunc and would reset the category.
+    return func(category=CATEGORY)(decorated)
 
 
 def formula(*, ranges=(), returns="number", **argument_help):

@@ -191,7 +191,8 @@ class _PassFail:
 
     def model_sigma2(self, shape, t):
         tail = tail_probability_standard(shape, t)
-        return np.exp(-tail.log_p - tail.log_cdf)
+        with np.errstate(over="ignore"):
+            return np.exp(-tail.log_p - tail.log_cdf)
 
 
 class _FittedShape:

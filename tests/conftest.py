@@ -1,0 +1,36 @@
+"""Shared fixtures: life-test logs written with openpyxl and read back as a spreadsheet passes them."""
+from __future__ import annotations
+
+import numpy as np
+import openpyxl
+import pytest
+
+
+def range_values(path, sheet, cell_range):
+    """Read a range the way a spreadsheet hands it to a formula: a 2-D list, None for blanks."""
+    book = openpyxl.load_workbook(path, data_only=True)
+    return [[cell.value for cell in row] for row in book[sheet][cell_range]]
+
+
+def write_log(path, lifetimes, *, header="Hours to failure", extra_rows=()):
+    """A life-test log: column A the unit number, column B the lifetime (None leaves a blank)."""
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Log"
+    sheet.append(["Unit", header])
+    for unit, value in enumerate(lifetimes, start=1):
+        sheet.append([unit, value])
+    for row in extra_rows:
+        sheet.append(list(row))
+    book.save(path)
+    return path
+
+
+@pytest.fixture
+def fixture_log(tmp_path):
+    """An invented bench log of 60 units (seeded gamma draws, rounded like a log), with one blank row."""
+    rng = np.random.default_rng(7)
+    values = [float(v) for v in np.round(rng.gamma(2.2, 450.0, size=60), 1)]
+    values[30] = None  # a unit whose result was never entered
+    path = write_log(tmp_path / "log.xlsx", values)
+    return path, values

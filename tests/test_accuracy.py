@@ -1,0 +1,58 @@
+"""Fixed-accuracy intervals and sample sizes."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from tailstop.accuracy import accuracy_for_units, critical_value, odds_interval, probability_interval, units_for_accuracy, whole_units
+
+
+def test_critical_value():
+    # check value: NIST/SEMATECH §1.3.6.7.1 — z = 1.959964 for 95 % two-sided
+    assert float(critical_value(0.95)) == pytest.approx(1.959964, abs=5e-7)
+    # check value: 2.575829 for 99 % two-sided (same table)
+    assert float(critical_value(0.99)) == pytest.approx(2.575829, abs=5e-7)
+
+
+def test_units_formula_by_hand():
+    # METHOD.md §4 by hand: pass-fail at p = 0.5 (σ² = 4), d = 1.5, 95 %:
+    # (1.959964 / ln 1.5)² · 4 = (1.959964 / 0.4054651)² · 4 = 4.833866² · 4 = 23.36626 · 4 = 93.4650 → 94 units
+    # (z to 7 digits from NIST/SEMATECH §1.3.6.7.1 moves n* by at most 5e-5)
+    n_star = float(units_for_accuracy(4.0, 1.5, 0.95))
+    assert n_star == pytest.approx(93.4650, abs=2e-4)
+    assert whole_units(n_star) == 94
+
+
+def test_whole_units_does_not_round_up_rounding_error():
+    assert whole_units(100.0 * (1 + 1e-13)) == 100
+    assert whole_units(100.001) == 101
+
+
+@given(st.floats(0.01, 1e4), st.floats(1.001, 20.0), st.floats(0.5, 0.999))
+def test_accuracy_for_units_inverts_units_for_accuracy(sigma2, d, confidence):
+    n = float(units_for_accuracy(sigma2, d, confidence))
+    assert float(accuracy_for_units(sigma2, n, confidence)) == pytest.approx(d, rel=1e-9)
+
+
+@given(st.floats(-700, 700), st.floats(1.0001, 1e6))
+def test_intervals_are_ordered_and_inside_the_unit_interval(log_odds, d):
+    odds = odds_interval(log_odds, d)
+    prob = probability_interval(log_odds, d)
+    assert odds.low <= math.exp(log_odds) <= odds.high or math.isinf(odds.high)
+    assert 0 <= prob.low <= prob.high <= 1
+    # the probability bounds are the odds bounds mapped by q/(1+q)
+    if 1e-300 < odds.low < 1e300 and odds.high < 1e300:
+        assert prob.low == pytest.approx(odds.low / (1 + odds.low), rel=1e-12)
+        assert prob.high == pytest.approx(odds.high / (1 + odds.high), rel=1e-12)
+
+
+def test_interval_formulas_of_method_section_2():
+    # METHOD.md §2: p_low = q/(d+q), p_high = d q/(1 + d q)
+    q, d = 0.25, 2.0
+    assert float(probability_interval(np.log(q), d).low) == pytest.approx(q / (d + q), rel=1e-15)
+    assert float(probability_interval(np.log(q), d).high) == pytest.approx(d * q / (1 + d * q), rel=1e-15)
+    assert float(odds_interval(np.log(q), d).low) == pytest.approx(q / d, rel=1e-15)
