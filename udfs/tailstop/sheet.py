@@ -21,5 +21,6 @@ from .sheet_estimate import (  # noqa: F401
     UNITS_REQUIRED,
     UNITS_REQUIRED_FROM_P,
 )
+from .sheet_notes import TAIL_METHOD_NOTES  # noqa: F401
 
 __all__ = ["FORMULAS", *FORMULAS]

@@ -1,0 +1,242 @@
+"""Which warnings apply to an estimate, as data (no spreadsheet knowledge).
+
+The estimate formulas always return their number; this module says where
+that number is weak, so that a companion formula and the headless tools can
+show it next to the estimate. Each warning is a ``Note``: a stable ``code``
+for programs and tests, and one short line of ``text`` for people.
+
+Warnings, in the order they are listed:
+
+``gamma-fit-fails``
+    A gamma-based method (known-shape, fitted-shape) is used and the gamma
+    fit check (``fit.gamma_fit_pvalue``) gives p < 0.05. Points to pass-fail.
+``gamma-fit-impossible``
+    known-shape on a log whose lifetimes are all equal: the fit check cannot
+    run, and equal lifetimes are not what a gamma model produces.
+``shape-disagrees``
+    known-shape, and a likelihood-ratio test of "shape = the given shape"
+    against a freely fitted shape rejects at the 5 % level.
+``one-side-only``
+    pass-fail with every unit on the same side of the threshold: there is no
+    estimate with bounds yet, and the stopping rule cannot stop.
+``few-on-a-side``
+    Fewer than 5 units on one side of the threshold (for pass-fail this note
+    gives way to ``one-side-only`` when that side is empty).
+``accuracy-needs-more``
+    Only when an accuracy and a confidence are given: the plug-in unit count
+    (z / log d)² σ̂²_n, with σ̂²_n as the stopping rule uses it, is larger
+    than the number of units in the log.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import special, stats
+
+from . import accuracy as _accuracy
+from .fit import gamma_fit_pvalue, shape_from_log_ratio
+from .methods import METHOD_NAMES, SufficientStatistics, estimate_tail
+from .rule import rule_sigma2
+
+__all__ = [
+    "Note",
+    "FIT_LEVEL",
+    "SHAPE_LEVEL",
+    "MIN_PER_SIDE",
+    "NO_NOTES_TEXT",
+    "method_notes",
+    "note_lines",
+    "shape_likelihood_ratio",
+]
+
+FIT_LEVEL = 0.05        # the gamma fit check fails below this p-value
+SHAPE_LEVEL = 0.05      # the given shape is rejected below this p-value
+MIN_PER_SIDE = 5        # fewer units than this on a side of the threshold is a warning
+NO_NOTES_TEXT = "no warnings for this log and method"
+
+GAMMA_METHODS = ("known-shape", "fitted-shape")
+# log(mean) - mean(log) at or below this means the lifetimes are all equal
+_EQUAL_LIFETIMES = 1e-13
+
+
+@dataclass(frozen=True)
+class Note:
+    """One warning.
+
+    Attributes
+    ----------
+    code : str
+        Stable identifier, e.g. ``'gamma-fit-fails'``.
+    text : str
+        One short line saying what is wrong and what to do.
+    figures : dict
+        The numbers behind the text (p-values, counts, units), for programs.
+    """
+
+    code: str
+    text: str
+    figures: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class ShapeTest:
+    """Likelihood-ratio test of a given gamma shape against the fitted one."""
+
+    given: float
+    fitted: float
+    statistic: float
+    pvalue: float
+
+
+def shape_likelihood_ratio(values, shape) -> ShapeTest:
+    """Test H0: gamma shape = ``shape`` (scale free) against a free shape.
+
+    With ``s = log(mean x) - mean(log x)`` and the scale profiled out
+    (ŝ = mean / a), the log-likelihood is n·g(a) plus a constant, with
+    g(a) = a log a - log Γ(a) - a (1 + s). The statistic
+    2 n (g(â) - g(shape)) is compared with a chi-square with 1 degree of
+    freedom (Wilks' theorem).
+
+    Raises
+    ------
+    ValueError
+        If the lifetimes are all equal (no fitted shape exists).
+    """
+    x = np.asarray(values, dtype=float).ravel()
+    log_ratio = float(SufficientStatistics.of(x, np.inf).log_ratio)
+    if not log_ratio > _EQUAL_LIFETIMES:
+        raise ValueError("all lifetimes are equal (or nearly): the gamma shape cannot be estimated")
+    fitted = float(shape_from_log_ratio(log_ratio))
+
+    def profile(a):
+        return a * np.log(a) - special.gammaln(a) - a * (1.0 + log_ratio)
+
+    statistic = max(0.0, 2.0 * x.size * float(profile(fitted) - profile(float(shape))))
+    return ShapeTest(given=float(shape), fitted=fitted, statistic=statistic, pvalue=float(stats.chi2.sf(statistic, 1)))
+
+
+def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=None, confidence=None,
+                 survivors=None) -> list:
+    """The warnings that apply to estimating P(X > threshold) from ``values`` by ``method``.
+
+    Parameters
+    ----------
+    values : array_like
+        Positive lifetimes, one per unit (at least 2).
+    threshold : float
+        The threshold c > 0.
+    method : {'pass-fail', 'known-shape', 'fitted-shape'}
+    shape : float, optional
+        The given gamma shape (known-shape only).
+    accuracy, confidence : float, optional
+        The requested accuracy factor d > 1 and confidence; give both to get
+        the ``accuracy-needs-more`` check, or neither to skip it.
+    survivors : array_like of bool, optional
+        pass-fail only: units taken off test at or beyond the threshold
+        without failing; they count as beyond it.
+
+    Returns
+    -------
+    list of Note
+        Empty when nothing applies.
+
+    Raises
+    ------
+    ValueError
+        When the inputs are not valid for the method (the same checks, and
+        the same texts, as ``methods.estimate_tail``).
+    """
+    if method not in METHOD_NAMES:
+        raise ValueError(f"method must be one of {', '.join(METHOD_NAMES)} (got {method!r})")
+    check_accuracy = _check_requested_accuracy(accuracy, confidence)
+    x = np.asarray(values, dtype=float).ravel()
+    estimate_tail(x, threshold, method, shape, survivors)  # validates, and fails where the estimate does
+    statistics = SufficientStatistics.of(x, threshold, survivors)
+    notes = []
+    if method in GAMMA_METHODS:
+        notes += _fit_notes(x)
+    if method == "known-shape":
+        notes += _shape_notes(x, shape)
+    notes += _side_notes(int(statistics.n), int(statistics.exceedances), method)
+    if check_accuracy:
+        notes += _accuracy_notes(statistics, threshold, method, shape, accuracy, confidence)
+    return notes
+
+
+def note_lines(notes) -> list:
+    """The text of each note; one line saying so when there are none."""
+    return [note.text for note in notes] or [NO_NOTES_TEXT]
+
+
+def _fit_notes(x):
+    if not float(SufficientStatistics.of(x, np.inf).log_ratio) > _EQUAL_LIFETIMES:
+        return [Note("gamma-fit-impossible",
+                     "gamma fit check cannot run: all lifetimes are equal; use pass-fail")]
+    pvalue = gamma_fit_pvalue(x)
+    if pvalue >= FIT_LEVEL:
+        return []
+    return [Note("gamma-fit-fails",
+                 f"gamma fit check fails (p = {pvalue:.3g} < {FIT_LEVEL:g}): the gamma model is doubtful "
+                 "for this log; use pass-fail",
+                 {"pvalue": pvalue})]
+
+
+def _shape_notes(x, shape):
+    if not float(SufficientStatistics.of(x, np.inf).log_ratio) > _EQUAL_LIFETIMES:
+        return []  # already said by gamma-fit-impossible
+    test = shape_likelihood_ratio(x, shape)
+    if test.pvalue >= SHAPE_LEVEL:
+        return []
+    return [Note("shape-disagrees",
+                 f"the log disagrees with the given shape {test.given:.4g} (fitted {test.fitted:.3g}, "
+                 f"likelihood-ratio p = {test.pvalue:.2g}); check the shape or use fitted-shape",
+                 {"given": test.given, "fitted": test.fitted, "pvalue": test.pvalue})]
+
+
+def _side_notes(n, beyond, method):
+    below = n - beyond
+    figures = {"units": n, "beyond": beyond, "below": below}
+    if method == "pass-fail" and (beyond == 0 or below == 0):
+        side = "outlasted" if below == 0 else "failed at or before"
+        return [Note("one-side-only",
+                     f"all {n} units {side} the threshold: no pass-fail bounds yet, and the rule cannot stop",
+                     figures)]
+    if min(beyond, below) >= MIN_PER_SIDE:
+        return []
+    if beyond < MIN_PER_SIDE:
+        count = f"{beyond} of {n} units outlasted the threshold"
+    else:
+        count = f"{below} of {n} units failed at or before the threshold"
+    consequence = ("the bounds are unreliable at such counts" if method == "pass-fail"
+                   else "the estimate rests on the gamma model, not on observed units")
+    return [Note("few-on-a-side", f"{count} (fewer than {MIN_PER_SIDE}): {consequence}", figures)]
+
+
+def _check_requested_accuracy(accuracy, confidence):
+    """True when the accuracy check is asked for (both given and valid); ValueError if half given."""
+    if accuracy is None and confidence is None:
+        return False
+    if accuracy is None or confidence is None:
+        raise ValueError("give both accuracy and confidence, or neither")
+    if not accuracy > 1:
+        raise ValueError(f"accuracy must be > 1 (got {accuracy:g})")
+    if not 0 < confidence < 1:
+        raise ValueError(f"confidence must be between 0 and 1 (got {confidence:g})")
+    return True
+
+
+def _accuracy_notes(statistics, threshold, method, shape, accuracy, confidence):
+    n = int(statistics.n)
+    sigma2 = float(rule_sigma2(statistics, threshold, method, shape))
+    needed = float(_accuracy.whole_units(_accuracy.units_for_accuracy(sigma2, accuracy, confidence)))
+    wanted = f"odds within a factor {accuracy:g} at {confidence * 100:g} % confidence"
+    if not np.isfinite(needed):
+        return [Note("accuracy-needs-more",
+                     f"{wanted} cannot be planned from this log: the estimate is too close to 0 or 1",
+                     {"units_needed": needed, "units": n})]
+    if not needed > n:
+        return []
+    return [Note("accuracy-needs-more",
+                 f"{wanted} need about {needed:,.0f} units; the log holds {n}",
+                 {"units_needed": needed, "units": n})]
