@@ -11,7 +11,8 @@ from __future__ import annotations
 import datetime as _dt
 import math
 from dataclasses import dataclass
-from itertools import chain
+from itertools import chain, compress, repeat
+from operator import is_not, itemgetter
 
 import numpy as np
 
@@ -128,6 +129,8 @@ def _rows_of(values):
         values = values.tolist()
     if not isinstance(values, (list, tuple)):
         return [[values]]
+    if set(map(type, values)) <= {list, tuple}:
+        return values
     return [row if isinstance(row, (list, tuple)) else [row] for row in values]
 
 
@@ -163,9 +166,17 @@ def _position(rows, flat_index, single_column):
 
 def _flat_cells(values):
     rows = _rows_of(values)
-    single_column = all(len(row) == 1 for row in rows)
-    flat = [row[0] for row in rows] if single_column else list(chain.from_iterable(rows))
+    single_column = set(map(len, rows)) <= {1}
+    flat = list(map(itemgetter(0), rows)) if single_column else list(chain.from_iterable(rows))
     return rows, flat, single_column
+
+
+def _non_blank(flat):
+    """Positions and values of the non-blank cells (cheap when none, or nearly all, are blank)."""
+    if flat.count(None) == 0:
+        return None, flat
+    index = list(compress(range(len(flat)), map(is_not, flat, repeat(None))))
+    return index, list(map(flat.__getitem__, index))
 
 
 def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
@@ -177,26 +188,34 @@ def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
         Naming the first offending cell: "row 17 holds text 'n/a'".
     """
     rows, flat, single_column = _flat_cells(values)
-    index = [i for i, v in enumerate(flat) if v is not None]
-    cells = [flat[i] for i in index]
-    kinds = set(map(type, cells))
-    numbers = None
-    if kinds <= {float, int} and not (int in kinds and any(type(v) is int and v in SPREADSHEET_ERROR_CODES for v in cells)):
-        try:
-            numbers = np.array(cells, dtype=float)
-        except OverflowError:
-            numbers = None
+    index, cells = _non_blank(flat)
+    numbers = _fast_numbers(cells)
     if numbers is None:
         converted = map(_as_number, cells)
         numbers = np.array([np.nan if v is None else v for v in converted], dtype=float)
     good = np.isfinite(numbers) & (numbers > 0)
     if not good.all():
         first = int(np.argmin(good))
-        raise InputError(f"{name}: {_position(rows, index[first], single_column)} {describe(cells[first])}")
+        flat_index = first if index is None else index[first]
+        raise InputError(f"{name}: {_position(rows, flat_index, single_column)} {describe(cells[first])}")
     if numbers.size < minimum:
         raise InputError(f"{name}: needs at least {minimum} lifetimes (found {numbers.size})")
-    row_of = np.asarray(index, dtype=np.int64) if single_column else _row_numbers(rows, index)
+    flat_positions = np.arange(len(flat)) if index is None else np.asarray(index, dtype=np.int64)
+    row_of = flat_positions if single_column else _row_numbers(rows, flat_positions)
     return CleanRange(values=numbers, rows=row_of, n_rows=len(rows))
+
+
+def _fast_numbers(cells):
+    """The cells as floats when they are all plain numbers (the common case), else None."""
+    kinds = set(map(type, cells))
+    if not kinds <= {float, int}:
+        return None
+    if int in kinds and not SPREADSHEET_ERROR_CODES.keys().isdisjoint(cells):
+        return None
+    try:
+        return np.array(cells, dtype=float)
+    except OverflowError:
+        return None
 
 
 def _row_numbers(rows, flat_index):
