@@ -1,0 +1,1 @@
+"""Headless workbook tools: safe opening, atomic saving, recalculation."""
