@@ -1,0 +1,265 @@
+"""Recalculate a workbook headless: tailstop formulas together with ordinary ones.
+
+The evaluation engine is the ``formulas`` package (see docs/recalc-engine.md
+for why). Each tailstop formula is registered with it under its own name
+(and under ``_xludf.NAME``, the prefix a spreadsheet may store before
+user-defined names); the function itself is looked up in
+``tailstop.sheet.FORMULAS`` at every call. The result is written as a copy of
+the book in which every formula is kept and its computed value is stored as
+the cell's cached value, so a spreadsheet program without the add-in shows it.
+"""
+from __future__ import annotations
+
+import contextlib
+import functools
+import importlib
+import re
+import types
+from dataclasses import dataclass
+from pathlib import Path
+
+import formulas
+import formulas.excel
+import numpy as np
+import schedula
+from formulas.functions import Array, parse_ranges
+from formulas.tokens.operand import Error, XlError
+from openpyxl.utils.cell import range_boundaries
+from openpyxl.worksheet.formula import ArrayFormula
+
+from .cached_values import EXCEL_ERRORS, CellError, remember, save_with_cached_values
+from .package import Limits, WorkbookRefused
+from .safe_io import open_workbook_safely
+
+__all__ = ["RecalcResult", "recalc", "evaluate_workbook", "register_formulas"]
+
+UDF_PREFIXES = ("", "_XLUDF.")
+_EXTERNAL_LINK = "application/vnd.openxmlformats-officedocument.spreadsheetml.externalLink+xml"
+_ENGINE_KEY = re.compile(r"^'?\[[^\]]*\](?P<sheet>.*?)'?!(?P<cell>[A-Z]+[0-9]+)$")
+
+
+@dataclass(frozen=True)
+class RecalcResult:
+    """What ``recalc`` wrote.
+
+    Attributes
+    ----------
+    path : pathlib.Path
+        The recalculated book.
+    backup : pathlib.Path or None
+        Backup of the file that was replaced (in-place recalculation only).
+    values : dict
+        ``(sheet title, coordinate) -> cached value`` for every formula cell.
+    errors : list of tuple
+        ``(sheet title, coordinate, value)`` for the cells that ended in a
+        spreadsheet error or a ``#TAILSTOP!`` message.
+    """
+
+    path: Path
+    backup: Path | None
+    values: dict
+    errors: list
+
+
+def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=False, limits=Limits()):
+    """Evaluate every formula of a workbook and write a copy that stores the results.
+
+    Parameters
+    ----------
+    book_path : str or os.PathLike
+        The workbook to evaluate; it is opened with ``open_workbook_safely``.
+    out_path : str or os.PathLike
+        Where to write the result. Must not exist unless ``in_place``.
+    in_place : bool
+        Allow ``out_path`` to be an existing file (for example ``book_path``).
+    backup : bool
+        Keep a backup of a replaced file.
+    allow_lossy : bool
+        Go on even if openpyxl would drop content of the book on save.
+    limits : Limits
+        Bounds for opening the book.
+
+    Returns
+    -------
+    RecalcResult
+
+    Raises
+    ------
+    WorkbookRefused
+        The book is unsafe, would lose content, or links to other workbooks
+        (their formulas would read files the checks never saw).
+    """
+    book = open_workbook_safely(book_path, allow_lossy=allow_lossy, limits=limits)
+    _refuse_external_links(Path(book_path), book.tailstop_report)
+    computed = evaluate_workbook(book_path)
+    cached = _cached_values(book, computed)
+    saved = save_with_cached_values(book, out_path, cached, in_place=in_place, backup=backup)
+    errors = [(title, cell, value) for (title, cell), value in cached.items() if _is_error(value)]
+    return RecalcResult(saved.path, saved.backup, cached, errors)
+
+
+def _refuse_external_links(path, report):
+    links = [name for name, kind in report.content_types.items() if kind == _EXTERNAL_LINK]
+    if links:
+        raise WorkbookRefused(f"{path.name}: links to other workbooks ({', '.join(links)}); recalculation "
+                              "does not follow them. Paste the linked values in, then recalculate")
+
+
+def _is_error(value):
+    return isinstance(value, CellError) or (isinstance(value, str) and value.startswith("#TAILSTOP!"))
+
+
+# ---------------------------------------------------------------------------
+# evaluation
+# ---------------------------------------------------------------------------
+def evaluate_workbook(book_path):
+    """Compute every cell of a workbook with the ``formulas`` engine.
+
+    The caller is responsible for having checked the file
+    (``open_workbook_safely``); ``recalc`` does both.
+
+    Parameters
+    ----------
+    book_path : str or os.PathLike
+
+    Returns
+    -------
+    dict
+        ``(SHEET TITLE IN UPPER CASE, coordinate) -> value`` with plain
+        Python values, ``None`` for empty and ``CellError`` for errors.
+    """
+    register_formulas()
+    with _quiet_progress():
+        model = formulas.ExcelModel().loads(str(Path(book_path).absolute())).finish()
+        solution = model.calculate()
+    computed = {}
+    for key, ranges in solution.items():
+        match = _ENGINE_KEY.match(str(key))
+        if match and hasattr(ranges, "value"):
+            computed[(match["sheet"].upper(), match["cell"])] = _from_engine(ranges.value)
+    return computed
+
+
+@contextlib.contextmanager
+def _quiet_progress():
+    """Silence the progress bar ``formulas`` prints while it compiles a book (its module only)."""
+    progress = getattr(formulas.excel, "tqdm", None)
+    if progress is None:
+        yield
+        return
+    formulas.excel.tqdm = types.SimpleNamespace(tqdm=functools.partial(progress.tqdm, disable=True))
+    try:
+        yield
+    finally:
+        formulas.excel.tqdm = progress
+
+
+def _cached_values(book, computed):
+    """(sheet title, coordinate) -> value for every formula cell and array-formula block."""
+    cached = {}
+    for sheet in book.worksheets:
+        for cell in list(_formula_cells(sheet)):
+            for member in _block(cell):
+                remember(member, computed.get((sheet.title.upper(), member.coordinate)), cached)
+    return cached
+
+
+def _formula_cells(sheet):
+    for row in sheet.iter_rows():
+        for cell in row:
+            if isinstance(cell.value, ArrayFormula) or cell.data_type == "f":
+                yield cell
+
+
+def _block(cell):
+    if not isinstance(cell.value, ArrayFormula):
+        return [cell]
+    first_column, first_row, last_column, last_row = range_boundaries(cell.value.ref)
+    return [cell.parent.cell(row, column)
+            for row in range(first_row, last_row + 1)
+            for column in range(first_column, last_column + 1)]
+
+
+# ---------------------------------------------------------------------------
+# tailstop formulas inside the engine
+# ---------------------------------------------------------------------------
+def register_formulas():
+    """Register every formula in ``tailstop.sheet.FORMULAS`` with the ``formulas`` engine.
+
+    Safe to call repeatedly; formulas added to the registry since the last
+    call are picked up.
+    """
+    registry = formulas.get_functions()
+    for name in _tailstop_formulas():
+        for prefix in UDF_PREFIXES:
+            registry[prefix + name.upper()] = _engine_function(name)
+
+
+def _tailstop_formulas():
+    return importlib.import_module("tailstop.sheet").FORMULAS
+
+
+def _engine_function(name):
+    """An engine-side function that converts arguments, calls the formula, converts the result."""
+
+    def call(*arguments):
+        function = _tailstop_formulas().get(name)
+        if function is None:
+            return _engine_error("#NAME?")
+        values, _ = parse_ranges(*arguments)
+        ranges = set(getattr(getattr(function, "tailstop_spec", None), "ranges", ()))
+        parameters = list(getattr(getattr(function, "tailstop_spec", None), "argument_help", {}))
+        cells = [_to_cells(value, index < len(parameters) and parameters[index] in ranges)
+                 for index, value in enumerate(values)]
+        return _to_engine(function(*cells))
+
+    call.__name__ = name
+    return call
+
+
+def _to_cells(value, is_range):
+    """An engine argument as a spreadsheet passes it: a scalar, or a 2-D list for a range."""
+    if not isinstance(value, np.ndarray):
+        return _plain(value)
+    if value.ndim == 0:
+        return _plain(value.item())
+    rows = [[_plain(item) for item in row] for row in np.atleast_2d(value).tolist()]
+    if not is_range and len(rows) == 1 and len(rows[0]) == 1:
+        return rows[0][0]
+    return rows
+
+
+def _plain(item):
+    """One engine value as a cell value: None for empty, error text for errors, Python numbers."""
+    if item is schedula.EMPTY or item is None:
+        return None
+    if isinstance(item, XlError):
+        return str(item)
+    if isinstance(item, (bool, np.bool_)):
+        return bool(item)
+    if isinstance(item, np.integer):
+        return int(item)
+    if isinstance(item, np.floating):
+        return float(item)
+    return item
+
+
+def _to_engine(result):
+    if isinstance(result, list):
+        rows = [[schedula.EMPTY if item is None else item for item in row] for row in result]
+        return np.asarray(rows, dtype=object).view(Array)
+    return schedula.EMPTY if result is None else result
+
+
+def _engine_error(code):
+    return np.asarray([[Error.errors[code]]], dtype=object).view(Array)
+
+
+def _from_engine(value):
+    """The top-left value of an engine result as a cached cell value."""
+    while isinstance(value, np.ndarray):
+        value = value.item(0) if value.size else None
+    if isinstance(value, XlError):
+        code = str(value)
+        return CellError(code) if code in EXCEL_ERRORS else code
+    return _plain(value)
