@@ -1,0 +1,77 @@
+"""Numbers quoted in docs/method.md, docs/getting-started.md and docs/cautions.md come from the code.
+
+Each figure a page quotes is recomputed here, so the pages and the code cannot
+drift apart; links between the pages must resolve.
+"""
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+
+import pytest
+
+from tailstop import notes
+from tailstop.sheet import TAIL_PROB, UNITS_REQUIRED
+
+DOCS = Path(__file__).resolve().parents[1] / "docs"
+PAGES = ("method.md", "getting-started.md", "cautions.md")
+
+
+def page(name):
+    return (DOCS / name).read_text(encoding="utf-8")
+
+
+def test_method_comparison_table_matches_units_required():
+    text = page("method.md")
+    call = re.search(r"`UNITS_REQUIRED\((\d+), (\d+), (\d+), ([\d.]+), ([\d.]+), method\)`", text)
+    threshold, shape, scale, accuracy, confidence = (float(v) for v in call.groups())
+    rows = dict(re.findall(r"^\| (known-shape|fitted-shape|pass-fail) \| (\d+) \|$", text, flags=re.MULTILINE))
+    assert set(rows) == {"known-shape", "fitted-shape", "pass-fail"}
+    for method, units in rows.items():
+        assert UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method) == int(units)
+    quoted_p = float(re.search(r"p ≈ ([\d.]+)\)", text).group(1))
+    assert TAIL_PROB(threshold, shape, scale) == pytest.approx(quoted_p, abs=5e-4)
+
+
+def test_method_hand_check_of_the_sample_size():
+    # check value: z = 1.959964, NIST/SEMATECH §1.3.6.7.1; σ² = 1/(p(1-p)) = 4 at p = 0.5
+    text = page("method.md")
+    assert "n* = (1.959964 / log 1.5)² · 4 = 93.5, that is 94 units" in text
+    assert round((1.959964 / math.log(1.5)) ** 2 * 4, 1) == 93.5
+    from tailstop.sheet import UNITS_REQUIRED_FROM_P
+
+    assert UNITS_REQUIRED_FROM_P(0.5, 1.5, 0.95) == 94
+
+
+def test_method_warning_thresholds_match_the_code():
+    text = page("method.md")
+    assert notes.FIT_LEVEL == 0.05 and "fit check gives p < 0.05" in text
+    assert notes.SHAPE_LEVEL == 0.05 and "rejects at the 5 % level" in text
+    assert notes.MIN_PER_SIDE == 5 and "fewer than 5 units beyond the threshold" in text
+
+
+def test_getting_started_figures():
+    text = page("getting-started.md")
+    assert "=TAIL_PROB(1500, 2, 600)" in text and "returns 0.2873" in text
+    assert round(TAIL_PROB(1500, 2, 600), 4) == 0.2873
+    assert "`=UNITS_REQUIRED(1500, 2, 600, 1.5, 0.95)`" in text and "(115)" in text
+    assert UNITS_REQUIRED(1500, 2, 600, 1.5, 0.95) == 115
+
+
+def _anchor(heading):
+    """GitHub-style anchor of a Markdown heading."""
+    return re.sub(r"[^\w\- ]", "", heading.strip().lower()).replace(" ", "-")
+
+
+@pytest.mark.parametrize("name", PAGES)
+def test_links_between_pages_resolve(name):
+    for target in re.findall(r"\]\(([^)\s]+)\)", page(name)):
+        if target.startswith(("http://", "https://")):
+            continue
+        path, _, anchor = target.partition("#")
+        linked = DOCS / path if path else DOCS / name
+        assert linked.exists(), f"{name} links to missing {target}"
+        if anchor:
+            headings = re.findall(r"^#+ (.+)$", linked.read_text(encoding="utf-8"), flags=re.MULTILINE)
+            assert anchor in {_anchor(h) for h in headings}, f"{name} links to missing anchor {target}"
