@@ -1,0 +1,323 @@
+"""Operating characteristics of the stopping rule: exact pass-fail and the Monte Carlo.
+
+Checks against things outside the code under test: a case worked on paper
+(binomial probabilities written out), the straightforward per-replication
+simulation and a straightforward full-grid propagation of the same rule,
+identities of probability, and the asymptotic properties of the purely
+sequential rule (Chow & Robbins 1965; Banerjee & Mukhopadhyay 2016).
+
+Monte Carlo agreement is asserted within 4 standard errors: for a correct
+implementation a seeded comparison then fails with probability about 6e-5
+per figure, while the mistakes these tests guard against (an off-by-one in
+the stopping time, a wrong regularization, a lost state) move E[N] by a whole
+unit or more, which is 10 or more standard errors at these sizes.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from tailstop import operating as op
+from tailstop import rule
+from tailstop.methods import SufficientStatistics, model_sigma2
+from tailstop.tail import tail_probability
+
+Z95 = 1.959964   # check value: NIST/SEMATECH §1.3.6.7.1, two-sided 95 %
+Z90 = 1.644854   # check value: NIST/SEMATECH §1.3.6.7.1, two-sided 90 %
+AGREE = 4.0      # standard errors; see the module docstring
+
+
+def test_tiny_case_worked_on_paper():
+    # Worked by hand (common practice, no published source): pilot 2, accuracy d = 5.75,
+    # confidence 0.90, so z = 1.644854 and the boundary factor is
+    #   B = (z / ln 5.75)^2 = (1.644854 / 1.749200)^2 = 0.8843.
+    # The rule stops at (n, S) when 0 < S < n and n >= B / (p~ (1 - p~)), p~ = (S + 1/2) / (n + 1):
+    #   n = 2, S = 1: p~ = 1/2,   B / 0.25     = 3.537 > 2  -> continue
+    #   n = 3, S = 1 or 2: p~ = 3/8,  B / 0.234375 = 3.773 > 3  -> continue
+    #   n = 4, S = 2: p~ = 1/2,   B / 0.25     = 3.537 <= 4 -> STOP
+    #   n = 4, S = 1 or 3: p~ = 3/10, B / 0.21 = 4.211 > 4  -> continue
+    #   n = 5, S = 1 or 4: p~ = 1/4,  B / 0.1875 = 4.716 <= 5 -> STOP
+    #   n = 5, S = 2 or 3: p~ = 5/12, B / 0.24306 = 3.638 <= 5 -> STOP
+    # (S = 0 or S = n never stops.) With p = 0.3, q = 0.7:
+    #   P(N = 4) = P(S4 = 2) = 6 p^2 q^2 = 6 * 0.09 * 0.49 = 0.2646
+    #   P(N = 5) = P(S4 = 0) p + P(S4 = 1) + P(S4 = 3) + P(S4 = 4) q
+    #            = p q^4 + 4 p q^3 + 4 p^3 q + p^4 q
+    #            = 0.07203 + 0.41160 + 0.07560 + 0.00567 = 0.56490
+    #   P(N > 5) = q^5 + p^5 = 0.16807 + 0.00243 = 0.17050          (total 1.00000)
+    # Coverage: the true odds are 0.3/0.7 = 0.428571; the interval is [q^/d, q^ d]:
+    #   (4,2) q^ = 1    -> [0.1739, 5.75]  covers
+    #   (5,1) q^ = 1/4  -> [0.0435, 1.4375] covers
+    #   (5,2) q^ = 2/3  -> [0.1159, 3.833] covers
+    #   (5,3) q^ = 3/2  -> [0.2609, 8.625] covers
+    #   (5,4) q^ = 4    -> [0.6957, 23.0]  misses
+    #   P(N = 5, S5 = 4) = P(S4 = 3) p + P(S4 = 4) q = 4 p^4 q + p^4 q = 5 p^4 q = 0.02835
+    #   coverage = P(N = 4) + P(N = 5) - 0.02835 = 0.2646 + 0.56490 - 0.02835 = 0.80115
+    result = op.pass_fail_exact(0.3, 5.75, 0.90, 2, n_max=5)
+    assert result.stop_z == pytest.approx(Z90, abs=1e-6)
+    assert result.distribution[:4] == pytest.approx([0, 0, 0, 0], abs=1e-15)
+    assert result.distribution[4] == pytest.approx(0.2646, abs=1e-12)
+    assert result.distribution[5] == pytest.approx(0.56490, abs=1e-12)
+    assert result.beyond == pytest.approx(0.17050, abs=1e-12)
+    assert result.coverage == pytest.approx(0.80115, abs=1e-12)
+    assert result.expected_units == pytest.approx((4 * 0.2646 + 5 * 0.56490) / 0.82950, abs=1e-12)
+    # quantiles of N: P(N <= 4) = 0.2646 >= 0.05; P(N <= 5) = 0.8295 >= 0.5 but < 0.95
+    assert result.quantiles == {0.05: 4.0, 0.5: 5.0, 0.95: math.inf}
+
+
+def straightforward_propagation(p, accuracy, confidence, pilot, n_max, check_every=1):
+    """P(N = n) and coverage on the full (n, S) grid, one rule.stops call per n, no windows."""
+    running = stats.binom.pmf(np.arange(pilot + 1), pilot, p)
+    distribution = np.zeros(n_max + 1)
+    coverage = 0.0
+    for n in range(pilot, n_max + 1):
+        k = np.arange(n + 1)
+        statistics = SufficientStatistics(n=np.full(n + 1, n), sum_x=np.zeros(n + 1),
+                                          log_ratio=np.zeros(n + 1), exceedances=k)
+        stop = rule.stops(statistics, 1.0, accuracy, confidence, pilot, "pass-fail", check_every=check_every)
+        distribution[n] = running[stop].sum()
+        with np.errstate(divide="ignore"):
+            log_odds = np.log(k[stop]) - np.log(n - k[stop])
+        inside = np.abs(log_odds - math.log(p / (1 - p))) <= math.log(accuracy)
+        coverage += running[stop][inside].sum()
+        running = np.where(stop, 0.0, running)
+        running = np.concatenate([running * (1 - p), [0.0]]) + np.concatenate([[0.0], running * p])
+    return distribution, coverage, running.sum()
+
+
+@pytest.mark.parametrize("p, accuracy, pilot, n_max, check_every", [
+    (0.02, 1.6, 10, 1500, 1),   # small p: the windows of non-zero probability are trimmed
+    (0.5, 1.4, 2, 400, 1),
+    (0.3, 1.5, 7, 300, 3),      # the rule consulted every third unit
+])
+def test_exact_matches_the_straightforward_full_grid(p, accuracy, pilot, n_max, check_every):
+    # common practice, no published source: the shortcut against the plain computation
+    expected, coverage, beyond = straightforward_propagation(p, accuracy, 0.95, pilot, n_max, check_every)
+    result = op.pass_fail_exact(p, accuracy, 0.95, pilot, n_max=n_max, check_every=check_every)
+    assert result.distribution == pytest.approx(expected, abs=1e-14)
+    assert result.coverage == pytest.approx(coverage, abs=1e-12)
+    assert result.beyond == pytest.approx(beyond, abs=1e-12)
+
+
+@pytest.mark.parametrize("threshold, shape, scale, accuracy, pilot, check_every", [
+    (1000.0, 2.0, 600.0, 1.5, 10, 1),
+    (300.0, 0.8, 900.0, 2.0, 3, 1),
+    (1000.0, 2.0, 600.0, 1.7, 5, 4),
+])
+def test_exact_agrees_with_monte_carlo_of_the_same_rule(threshold, shape, scale, accuracy, pilot, check_every):
+    p = float(tail_probability(threshold, shape, scale).p)
+    exact = op.pass_fail_exact(p, accuracy, 0.95, pilot, check_every=check_every)
+    simulated = op.simulate(threshold, shape, scale, accuracy, 0.95, pilot, "pass-fail", replications=20_000,
+                            seed=11, check_every=check_every)
+    assert abs(simulated.expected_units - exact.expected_units) <= AGREE * simulated.expected_units_se
+    assert abs(simulated.coverage - exact.coverage) <= AGREE * math.sqrt(exact.coverage * (1 - exact.coverage) / 20_000)
+    assert abs(simulated.sd_units - exact.sd_units) <= AGREE * simulated.sd_units_se
+    # the whole distribution: P(N <= n) at the exact 10 %, 50 % and 90 % points
+    cdf = np.cumsum(exact.distribution)
+    for level in (0.1, 0.5, 0.9):
+        n = int(np.searchsorted(cdf, level))
+        share = np.mean(simulated.units <= n)
+        assert abs(share - cdf[n]) <= AGREE * math.sqrt(cdf[n] * (1 - cdf[n]) / 20_000)
+
+
+def test_exact_agrees_with_the_per_replication_loop():
+    # the reference simulation is the plain one: a whole log per replication, SufficientStatistics.running
+    p = float(tail_probability(1000.0, 2.0, 600.0).p)
+    exact = op.pass_fail_exact(p, 1.8, 0.95, 5)
+    units, covered = op.reference_simulation(1000.0, 2.0, 600.0, 1.8, 0.95, 5, "pass-fail", replications=1500, seed=3)
+    se = exact.sd_units / math.sqrt(units.size)
+    assert abs(units.mean() - exact.expected_units) <= AGREE * se
+    assert abs(covered.mean() - exact.coverage) <= AGREE * math.sqrt(exact.coverage * (1 - exact.coverage) / units.size)
+
+
+@pytest.mark.parametrize("p, accuracy, pilot", [(0.3, 1.5, 10), (0.05, 3.0, 2), (0.9, 2.0, 20), (0.5, 1.2, 4)])
+def test_exact_properties(p, accuracy, pilot):
+    result = op.pass_fail_exact(p, accuracy, 0.95, pilot)
+    # probabilities add up to one with P(N > n_max)
+    assert result.distribution.sum() + result.beyond == pytest.approx(1.0, abs=1e-12)
+    assert np.all(result.distribution >= 0)
+    assert result.distribution[:pilot].sum() == 0.0
+    assert result.beyond <= 1e-12            # the default n_max runs until nothing is left
+    assert result.expected_units >= pilot
+    assert 0.0 <= result.coverage <= 1.0
+    assert result.quantiles[0.05] <= result.quantiles[0.5] <= result.quantiles[0.95]
+    # a stricter boundary (larger z) can only make the rule stop later: N grows pathwise
+    later = op.pass_fail_exact(p, accuracy, 0.95, pilot, stop_z=1.3 * Z95)
+    assert later.expected_units >= result.expected_units
+    common = min(later.distribution.size, result.distribution.size)
+    assert np.all(np.cumsum(later.distribution)[:common] <= np.cumsum(result.distribution)[:common] + 1e-12)
+
+
+def test_exact_never_stops_on_one_side_only():
+    # with n_max = pilot every state S = 0 or S = n is still running: P(N > n_max) = p^m + q^m
+    result = op.pass_fail_exact(0.2, 50.0, 0.5, 6, n_max=6)
+    assert result.beyond == pytest.approx(0.2 ** 6 + 0.8 ** 6, rel=1e-12)
+
+
+def test_n_star_is_the_fixed_size_plan():
+    # check value: METHOD.md §4 with pass-fail σ² = 1/(p(1-p)) = 4 at p = 0.5 and z from NIST
+    result = op.pass_fail_exact(0.5, 1.5, 0.95, 10)
+    assert result.n_star == pytest.approx((Z95 / math.log(1.5)) ** 2 * 4.0, rel=1e-6)
+    assert result.fixed_units == math.ceil(result.n_star)
+
+
+def test_bad_plans_are_refused():
+    with pytest.raises(ValueError, match="pilot"):
+        op.pass_fail_exact(0.3, 1.5, 0.95, 1)
+    with pytest.raises(ValueError, match="accuracy"):
+        op.pass_fail_exact(0.3, 1.0, 0.95, 5)
+    with pytest.raises(ValueError, match="probability"):
+        op.pass_fail_exact(0.0, 1.5, 0.95, 5)
+    with pytest.raises(ValueError, match="replications"):
+        op.simulate(1000, 2, 600, 1.5, 0.95, 5, replications=0)
+    with pytest.raises(ValueError, match="one side"):
+        op.simulate(1e6, 2, 1, 1.5, 0.95, 5)
+
+
+# ---------------------------------------------------------------- calibration
+
+
+def test_pass_fail_calibration_is_the_smallest_inflation():
+    # p = 0.1, d = 2, pilot 5: the exact coverage at z is below 95 % (0.937)
+    evaluate = lambda z: op.pass_fail_exact(0.1, 2.0, 0.95, 5, stop_z=z)  # noqa: E731
+    calibration = op.calibrate(evaluate, 0.95)
+    assert calibration.reached
+    assert calibration.at_z.coverage < 0.95
+    assert calibration.z == pytest.approx(Z95, abs=1e-6)
+    assert calibration.z_calibrated >= calibration.z
+    assert evaluate(calibration.z_calibrated).coverage >= 0.95
+    assert evaluate(calibration.z_calibrated - calibration.step).coverage < 0.95
+    assert 0 < calibration.step <= 1e-3 * calibration.z + 1e-12
+    # every point of the scan grid below the calibrated value falls short as well
+    grid = calibration.z * (1 + 0.02 * np.arange(50))
+    assert all(evaluate(z).coverage < 0.95 for z in grid[grid < calibration.z_calibrated - calibration.step])
+    assert calibration.extra_units == pytest.approx(
+        calibration.calibrated.expected_units - calibration.at_z.expected_units)
+    assert calibration.extra_units > 0
+    assert calibration.confidence_calibrated == pytest.approx(2 * stats.norm.cdf(calibration.z_calibrated) - 1)
+
+
+def test_calibration_when_nominal_is_already_reached():
+    calibration = op.calibrate(lambda z: op.pass_fail_exact(0.3, 1.5, 0.95, 10, stop_z=z), 0.95)
+    assert calibration.at_z.coverage >= 0.95
+    assert calibration.z_calibrated == pytest.approx(calibration.z)
+    assert calibration.extra_units == 0
+
+
+def test_simulated_calibration_reports_its_uncertainty():
+    evaluate = lambda z: op.simulate(1000, 0.7, 400, 2.0, 0.95, 10, "known-shape", replications=4000,  # noqa: E731
+                                     stop_z=z, common_numbers=True)
+    calibration = op.calibrate(evaluate, 0.95)
+    assert calibration.reached
+    assert calibration.calibrated.coverage >= 0.95
+    optimistic, pessimistic = calibration.z_range
+    assert optimistic <= calibration.z_calibrated <= pessimistic
+    assert evaluate(pessimistic).coverage - 2 * evaluate(pessimistic).coverage_se >= 0.95
+
+
+# ---------------------------------------------------------------- Monte Carlo
+
+
+def known_shape_plan(n_target=200, shape=2.0, scale=600.0, threshold=1000.0):
+    sigma2 = float(model_sigma2("known-shape", threshold, shape, scale))
+    return threshold, shape, scale, math.exp(Z95 * math.sqrt(sigma2 / n_target))
+
+
+@pytest.mark.parametrize("shape, check_every, pilot", [(2.0, 1, 10), (0.5, 1, 2), (8.0, 3, 5), (1.0, 1, 30)])
+def test_screen_gives_exactly_the_runs_of_rule_stops_everywhere(shape, check_every, pilot):
+    # the shortcut against the straightforward computation, on the same random numbers
+    threshold, shape, scale, accuracy = known_shape_plan(150, shape=shape)
+    common = dict(replications=3000, seed=5, check_every=check_every)
+    fast = op.simulate(threshold, shape, scale, accuracy, 0.95, pilot, "known-shape", screen=True, **common)
+    plain = op.simulate(threshold, shape, scale, accuracy, 0.95, pilot, "known-shape", screen=False, **common)
+    assert np.array_equal(fast.units, plain.units)
+    assert np.array_equal(fast.covered, plain.covered)
+
+
+def test_simulation_is_reproducible_for_a_seed():
+    threshold, shape, scale, accuracy = known_shape_plan(100)
+    first = op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=2000, seed=42)
+    again = op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=2000, seed=42)
+    other = op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=2000, seed=43)
+    assert np.array_equal(first.units, again.units) and first.coverage == again.coverage
+    assert not np.array_equal(first.units, other.units)
+
+
+@pytest.mark.parametrize("method", ["known-shape", "fitted-shape"])
+def test_simulation_agrees_with_the_per_replication_loop(method):
+    threshold, shape, scale, accuracy = known_shape_plan(60)
+    count = 300 if method == "fitted-shape" else 1500
+    fast = op.simulate(threshold, shape, scale, accuracy, 0.95, 10, method, replications=4 * count, seed=8)
+    units, covered = op.reference_simulation(threshold, shape, scale, accuracy, 0.95, 10, method,
+                                             replications=count, seed=9)
+    se = math.hypot(fast.expected_units_se, units.std(ddof=1) / math.sqrt(count))
+    assert abs(fast.expected_units - units.mean()) <= AGREE * se
+    coverage_se = math.hypot(fast.coverage_se, math.sqrt(fast.coverage * (1 - fast.coverage) / count))
+    assert abs(fast.coverage - covered.mean()) <= AGREE * coverage_se
+
+
+def test_chunks_and_blocks_keep_the_figures(monkeypatch):
+    # many small chunks and short blocks: the pass-fail simulation must still match the exact figures
+    monkeypatch.setattr(op, "_CHUNK_REPLICATIONS", 700)
+    monkeypatch.setattr(op, "_LONGEST_BLOCK", 5)
+    p = float(tail_probability(1000.0, 2.0, 600.0).p)
+    exact = op.pass_fail_exact(p, 1.6, 0.95, 4)
+    simulated = op.simulate(1000.0, 2.0, 600.0, 1.6, 0.95, 4, "pass-fail", replications=5000, seed=2)
+    assert simulated.units.size == 5000
+    assert abs(simulated.expected_units - exact.expected_units) <= AGREE * simulated.expected_units_se
+    assert abs(simulated.coverage - exact.coverage) <= AGREE * math.sqrt(exact.coverage * (1 - exact.coverage) / 5000)
+
+
+def test_known_shape_asymptotics():
+    # Chow & Robbins (1965): E[N]/n* -> 1 and coverage -> 1 - γ as d -> 1 (here n* = 1500)
+    threshold, shape, scale, accuracy = known_shape_plan(1500)
+    result = op.simulate(threshold, shape, scale, accuracy, 0.95, 10, replications=6000, seed=1)
+    assert result.expected_units / result.n_star == pytest.approx(1.0, abs=0.01)
+    assert abs(result.coverage - 0.95) <= max(0.01, AGREE * result.coverage_se)
+    assert result.beyond == 0.0
+
+
+def test_standard_errors_match_the_spread_between_seeds():
+    # the reported E[N] standard error is the spread of E[N] over independent seeds (within sampling error)
+    threshold, shape, scale, accuracy = known_shape_plan(40)
+    runs = [op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=400, seed=seed) for seed in range(40)]
+    spread = np.std([r.expected_units for r in runs], ddof=1)
+    reported = np.mean([r.expected_units_se for r in runs])
+    assert 0.7 < spread / reported < 1.4   # sd of 40 draws is within ±30 % with probability > 0.99
+    coverage_spread = np.std([r.coverage for r in runs], ddof=1)
+    assert 0.7 < coverage_spread / np.mean([r.coverage_se for r in runs]) < 1.4
+
+
+def test_simulated_properties():
+    threshold, shape, scale, accuracy = known_shape_plan(80)
+    result = op.simulate(threshold, shape, scale, accuracy, 0.95, 12, "fitted-shape", replications=300, seed=4)
+    assert result.units.min() >= 12
+    assert result.expected_units >= 12
+    assert 0 <= result.coverage <= 1 and 0 <= result.beyond <= 1
+    assert result.quantiles[0.05] <= result.quantiles[0.5] <= result.quantiles[0.95]
+    assert all(result.quantiles_se[level] >= 0 for level in op.QUANTILE_LEVELS)
+    assert not result.exact and "300 replications" in result.kind
+
+
+def test_runs_not_stopped_by_n_max_count_as_beyond_and_not_covered():
+    threshold, shape, scale, accuracy = known_shape_plan(300)
+    result = op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=1000, seed=6, n_max=250)
+    assert result.beyond == 1.0 and result.coverage == 0.0
+    assert math.isnan(result.expected_units)
+    assert result.quantiles[0.5] == math.inf
+
+
+def test_comparison_shows_what_the_shape_saves():
+    # σ² known-shape <= fitted-shape <= pass-fail (information inequality; METHOD.md §3)
+    comparison = op.compare_methods(1000.0, 2.0, 600.0, 1.6, 0.95, 10, replications=2000, fitted_replications=300)
+    results = comparison.results
+    assert list(results) == ["pass-fail", "known-shape", "fitted-shape"]
+    assert results["pass-fail"].exact and not results["known-shape"].exact
+    assert results["known-shape"].n_star < results["fitted-shape"].n_star < results["pass-fail"].n_star
+    assert results["known-shape"].expected_units < results["fitted-shape"].expected_units < results["pass-fail"].expected_units
+    table = comparison.table()
+    assert table[0] == ["", "pass-fail", "known-shape", "fitted-shape"]
+    assert all(len(row) == 4 for row in table)
+    assert any(row[0] == "coverage" and "±" in row[2] and "±" not in row[1] for row in table)

@@ -1,0 +1,943 @@
+"""Operating characteristics of the sequential stopping rule (METHOD.md §6).
+
+What will the purely sequential rule of ``rule.py`` do when the lifetimes
+really follow the planning guess? How many units N will it test, how bad can
+it get, and how often does its final interval cover the true probability?
+
+* ``pass-fail``: EXACT. The state after n units is (n, S), S the number of
+  units beyond the threshold. The probability of every still-running state
+  is propagated forward, the states where ``rule.stops`` says STOP are
+  removed, which gives P(N = n, S = k) exactly. Vectorized over S, cost
+  O(n_max²) at most (states of probability exactly 0 are skipped).
+* ``known-shape`` and ``fitted-shape``: Monte Carlo over replications,
+  vectorized, seeded (numpy Generator), chunked so that memory stays
+  bounded; every figure comes with its Monte Carlo standard error.
+
+The stop decision is always ``rule.stops`` itself; the Monte Carlo only
+skips calling it on prefixes where a conservative lower bound on σ̂² shows it
+cannot say STOP (``_SigmaScreen``), which a test checks against calling it
+everywhere.
+
+Calibration (``calibrate``) finds the smallest critical value z' >= z for the
+stopping boundary (n >= (z'/log d)² σ̂²_n) whose coverage at the planning
+guess reaches the nominal confidence, and the price in expected units.
+``compare_methods`` puts the three methods side by side at one guess.
+
+References: Banerjee, S. & Mukhopadhyay, N. (2016), Ann. Inst. Stat. Math. 68,
+541–570; Chow, Y. S. & Robbins, H. (1965), Ann. Math. Statist. 36, 457–462.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import stats
+
+from . import accuracy as _accuracy
+from . import rule
+from .methods import SufficientStatistics, estimate_from_statistics, get_method, model_sigma2
+from .tail import tail_probability
+
+__all__ = [
+    "DEFAULT_SEED",
+    "QUANTILE_LEVELS",
+    "OperatingCharacteristics",
+    "Calibration",
+    "MethodComparison",
+    "pass_fail_exact",
+    "simulate",
+    "reference_simulation",
+    "operating_characteristics",
+    "calibrate",
+    "compare_methods",
+    "default_n_max",
+    "confidence_for_z",
+]
+
+DEFAULT_SEED = 20261201
+QUANTILE_LEVELS = (0.05, 0.5, 0.95)
+# Rows of the (n, S) grid evaluated by one call of rule.stops (pass-fail exact).
+_EXACT_BLOCK_ROWS = 64
+# Running probability below this ends an exact run that has no explicit n_max.
+_EXACT_TOLERANCE = 1e-12
+# Monte Carlo memory: replications per chunk and the longest block of units drawn at once.
+_CHUNK_REPLICATIONS = 8192
+_LONGEST_BLOCK = 64
+_FIRST_BLOCK = 8
+
+
+# --------------------------------------------------------------------------- results
+
+
+@dataclass(frozen=True)
+class OperatingCharacteristics:
+    """What the stopping rule does under a planning guess.
+
+    Attributes
+    ----------
+    method : str
+    exact : bool
+        True for the exact pass-fail propagation, False for Monte Carlo.
+    probability : float
+        The true p = P(X > threshold) under the guess.
+    n_star : float
+        Fixed-size plan n* = (z / log d)² σ² (real-valued; METHOD.md §4).
+    pilot, n_max : int
+        Pilot size and the last n examined.
+    confidence : float
+        Nominal confidence 1 - γ of the final interval.
+    stop_z : float
+        Critical value used in the stopping boundary (z itself unless calibrating).
+    expected_units, sd_units : float
+        Mean and standard deviation of N among the runs that stop by ``n_max``.
+    quantiles : dict
+        {0.05: ..., 0.5: ..., 0.95: ...}: the smallest n with P(N <= n) >= level;
+        ``inf`` when that is beyond ``n_max``.
+    beyond : float
+        P(N > n_max): runs that had not stopped by n_max.
+    coverage : float
+        P(N <= n_max and p lies in the final interval [q̂/(d+q̂), d q̂/(1+d q̂)]);
+        a run that has not stopped counts as not covered, so the true
+        coverage lies in [coverage, coverage + beyond].
+    replications, seed : int or None
+        Monte Carlo only.
+    *_se : float or dict
+        Monte Carlo standard errors (0 for exact figures).
+    distribution : ndarray or None
+        Exact only: P(N = n) for n = 0 .. n_max.
+    units, covered : ndarray or None
+        Monte Carlo only: N of each replication (n_max + 1 = did not stop) and
+        whether its final interval covered p.
+    """
+
+    method: str
+    exact: bool
+    probability: float
+    n_star: float
+    pilot: int
+    n_max: int
+    confidence: float
+    stop_z: float
+    expected_units: float
+    sd_units: float
+    quantiles: dict
+    beyond: float
+    coverage: float
+    replications: int | None = None
+    seed: int | None = None
+    expected_units_se: float = 0.0
+    sd_units_se: float = 0.0
+    quantiles_se: dict = field(default_factory=dict)
+    beyond_se: float = 0.0
+    coverage_se: float = 0.0
+    distribution: np.ndarray | None = field(default=None, repr=False)
+    units: np.ndarray | None = field(default=None, repr=False)
+    covered: np.ndarray | None = field(default=None, repr=False)
+
+    @property
+    def fixed_units(self) -> int:
+        """ceil(n*): the unit count of the fixed-size plan."""
+        return int(_accuracy.whole_units(self.n_star))
+
+    @property
+    def kind(self) -> str:
+        """'exact' or 'simulated (R replications, seed S)'."""
+        if self.exact:
+            return "exact"
+        return f"simulated ({self.replications:,} replications, seed {self.seed})"
+
+    def figures(self):
+        """(label, value, standard error or None) for every figure, in display order."""
+        se = (lambda value: None) if self.exact else (lambda value: value)
+        rows = [
+            ("fixed-size units n*", self.fixed_units, None),
+            ("expected units E[N]", self.expected_units, se(self.expected_units_se)),
+            ("sd of N", self.sd_units, se(self.sd_units_se)),
+        ]
+        for level in QUANTILE_LEVELS:
+            rows.append((f"N {level:.0%} quantile", self.quantiles[level], se(self.quantiles_se.get(level, 0.0))))
+        rows.append((f"P(N > {self.n_max:,})", self.beyond, se(self.beyond_se)))
+        rows.append(("coverage", self.coverage, se(self.coverage_se)))
+        return rows
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """Smallest critical value z' >= z whose coverage reaches the nominal level.
+
+    Attributes
+    ----------
+    z, z_calibrated : float
+        The nominal critical value and the calibrated one (used only in the
+        stopping boundary; the final interval is q̂/d .. q̂·d either way).
+    inflation : float
+        z_calibrated / z.
+    confidence_calibrated : float
+        The confidence level whose z is z_calibrated, 2 Φ(z') - 1.
+    nominal, at_z, calibrated : OperatingCharacteristics
+        ``at_z`` the plan as given, ``calibrated`` with the calibrated boundary.
+    step : float
+        Resolution of the search in z (z' - step falls short of nominal).
+    z_range : tuple or None
+        Monte Carlo only: the z' where coverage ± 2 standard errors reaches the
+        nominal level, the uncertainty of z_calibrated.
+    reached : bool
+        False when no z' up to the search limit reaches the nominal coverage.
+    """
+
+    z: float
+    z_calibrated: float
+    confidence_calibrated: float
+    at_z: OperatingCharacteristics
+    calibrated: OperatingCharacteristics
+    step: float
+    z_range: tuple | None
+    reached: bool
+
+    @property
+    def inflation(self) -> float:
+        return self.z_calibrated / self.z
+
+    @property
+    def extra_units(self) -> float:
+        """Price of the calibration: E[N] calibrated - E[N] as planned."""
+        return self.calibrated.expected_units - self.at_z.expected_units
+
+
+@dataclass(frozen=True)
+class MethodComparison:
+    """The three methods side by side at one planning guess (``results[method]``)."""
+
+    results: dict
+
+    def table(self):
+        """Rows [label, value per method...] with standard errors as '± se' where simulated."""
+        methods = list(self.results)
+        rows = [["", *methods], ["figures", *(self.results[m].kind for m in methods)]]
+        labels = [label for label, _, _ in self.results[methods[0]].figures()]
+        by_method = {m: self.results[m].figures() for m in methods}
+        for i, label in enumerate(labels):
+            rows.append([label, *(_format_figure(by_method[m][i][1], by_method[m][i][2]) for m in methods)])
+        return rows
+
+
+def _format_figure(value, se):
+    if isinstance(value, (int, np.integer)):
+        text = f"{value:,}"
+    elif not math.isfinite(value):
+        text = "beyond n_max"
+    elif abs(value) >= 100:
+        text = f"{value:,.1f}"
+    else:
+        text = f"{value:.4g}"
+    if se is not None and math.isfinite(value):
+        text += f" ± {se:.2g}"
+    return text
+
+
+# --------------------------------------------------------------------------- inputs
+
+
+def confidence_for_z(z):
+    """The two-sided confidence level whose critical value is z: 2 Φ(z) - 1."""
+    return float(1.0 - 2.0 * stats.norm.sf(z))
+
+
+def default_n_max(n_star, pilot):
+    """A generous cap on N: 5 n* + 100 units, and never below the pilot."""
+    return int(max(pilot, 5 * math.ceil(n_star)) + 100)
+
+
+def _check_plan(accuracy, confidence, pilot):
+    if not (np.isfinite(accuracy) and accuracy > 1):
+        raise ValueError(f"accuracy must be > 1 (got {accuracy!r})")
+    if not (np.isfinite(confidence) and 0 < confidence < 1):
+        raise ValueError(f"confidence must be between 0 and 1 (got {confidence!r})")
+    if not (float(pilot) == int(pilot) and pilot >= rule.MIN_PILOT):
+        raise ValueError(f"pilot must be a whole number >= {rule.MIN_PILOT}: fewer units cannot estimate σ² (got {pilot!r})")
+
+
+def _stop_confidence(confidence, stop_z):
+    return confidence if stop_z is None else confidence_for_z(stop_z)
+
+
+def _stop_z(confidence, stop_z):
+    return float(_accuracy.critical_value(confidence)) if stop_z is None else float(stop_z)
+
+
+# --------------------------------------------------------------------------- exact pass-fail
+
+
+def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1, stop_z=None,
+                    progress=None) -> OperatingCharacteristics:
+    """Exact operating characteristics of the pass-fail rule by forward propagation of (n, S).
+
+    Parameters
+    ----------
+    p : float
+        True probability that a unit is beyond the threshold, 0 < p < 1.
+    accuracy, confidence, pilot : float, float, int
+        The plan: odds within a factor ``accuracy`` at ``confidence``, pilot >= 2.
+    n_max : int, optional
+        Propagate exactly up to n_max. By default the propagation runs until
+        the still-running probability is below 1e-12, up to 20 n* + 1000 units
+        (runs with fewer than about B = (z/log d)² units beyond the threshold
+        cannot stop, so the tail of N can be long when B is large and p small).
+    check_every : int
+        The rule is consulted at n = pilot, pilot + k, ... (``rule.is_check_point``).
+    stop_z : float, optional
+        Critical value for the stopping boundary instead of z(confidence).
+    progress : callable, optional
+        Called with the fraction done (0..1).
+
+    Notes
+    -----
+    With q = 1 - p, after the pilot S ~ Binomial(pilot, p). At each n the mass
+    of the states (n, k) where ``rule.stops`` says STOP is P(N = n, S = k);
+    it is removed, the rest moves on as P(n+1, k) = P(n, k) q + P(n, k-1) p.
+    The stop set is evaluated by ``rule.stops`` on blocks of the (n, S) grid,
+    only over the S where the running probability is not exactly zero.
+    """
+    _check_plan(accuracy, confidence, pilot)
+    if not 0 < p < 1:
+        raise ValueError(f"the probability must be strictly between 0 and 1 (got {p!r})")
+    pilot = int(pilot)
+    n_star = float(_accuracy.units_for_accuracy(1.0 / (p * (1.0 - p)), accuracy, confidence))
+    adaptive = n_max is None
+    cap = max(default_n_max(n_star, pilot), 20 * math.ceil(n_star) + 1000) if adaptive else int(n_max)
+    if cap < pilot:
+        raise ValueError(f"n_max must be at least the pilot ({pilot}, got {cap})")
+    stop_confidence = _stop_confidence(confidence, stop_z)
+    propagation = _Propagation(p, pilot, cap)
+    stop_set = _PassFailStopSet(accuracy, stop_confidence, pilot, check_every)
+    n = pilot
+    while True:
+        if (n - pilot) % _EXACT_BLOCK_ROWS == 0:
+            low, high = propagation.window()
+            stop_set.evaluate(n, min(n + _EXACT_BLOCK_ROWS, cap + 1), low, high)
+            if progress is not None:
+                progress(min(1.0, (n - pilot) / max(1, cap - pilot)))
+        propagation.stop(n, stop_set.row(n, *propagation.window()))
+        if n == cap or (adaptive and propagation.running_mass() <= _EXACT_TOLERANCE) or propagation.running_mass() == 0:
+            break
+        propagation.advance()
+        n += 1
+    if progress is not None:
+        progress(1.0)
+    stopped_n, stopped_k, stopped_mass = propagation.stopped_states()
+    covered = _pass_fail_covers(stopped_n, stopped_k, p, accuracy)
+    return _exact_result(
+        probability=p, n_star=n_star, pilot=pilot, n_max=n, confidence=confidence,
+        stop_z=_stop_z(confidence, stop_z), distribution=propagation.distribution[: n + 1],
+        beyond=propagation.running_mass(), coverage=float(np.sum(stopped_mass[covered])),
+    )
+
+
+class _Propagation:
+    """P(n, k) of the still-running states, kept on the window of k where it is not 0."""
+
+    def __init__(self, p, pilot, cap):
+        self.p, self.q = p, 1.0 - p
+        self.n = pilot
+        self.mass = np.zeros(cap + 2)
+        self.mass[: pilot + 1] = stats.binom.pmf(np.arange(pilot + 1), pilot, p)
+        self.low, self.high = 0, pilot
+        self.distribution = np.zeros(cap + 1)
+        self._stopped = []
+
+    def window(self):
+        """[low, high] of k with non-zero running probability (trimmed lazily)."""
+        nonzero = np.flatnonzero(self.mass[self.low: self.high + 1])
+        if nonzero.size:
+            self.low, self.high = self.low + int(nonzero[0]), self.low + int(nonzero[-1])
+        return self.low, self.high
+
+    def stop(self, n, stops_row):
+        """Remove the states (n, k) where the rule stops; ``stops_row`` covers k = low..high."""
+        current = self.mass[self.low: self.high + 1]
+        stopping = stops_row & (current > 0)
+        if stopping.any():
+            k = self.low + np.flatnonzero(stopping)
+            taken = current[stopping]
+            self.distribution[n] = taken.sum()
+            self._stopped.append((np.full(k.size, n), k, taken.copy()))
+            current[stopping] = 0.0
+
+    def advance(self):
+        """One more unit: P(n+1, k) = P(n, k) q + P(n, k-1) p."""
+        current = self.mass[self.low: self.high + 1]
+        moved = current * self.p
+        current *= self.q
+        self.mass[self.high + 1] = 0.0
+        self.mass[self.low + 1: self.high + 2] += moved
+        self.high += 1
+        self.n += 1
+
+    def running_mass(self):
+        return float(self.mass[self.low: self.high + 1].sum())
+
+    def stopped_states(self):
+        if not self._stopped:
+            return np.zeros(0, int), np.zeros(0, int), np.zeros(0)
+        return tuple(np.concatenate(parts) for parts in zip(*self._stopped))
+
+
+class _PassFailStopSet:
+    """``rule.stops`` on a block of the (n, S) grid, served row by row."""
+
+    def __init__(self, accuracy, stop_confidence, pilot, check_every):
+        self.arguments = (1.0, accuracy, stop_confidence, pilot, "pass-fail")
+        self.check_every = check_every
+        self.first_n = self.first_k = 0
+        self.grid = np.zeros((0, 0), bool)
+
+    def evaluate(self, first_n, end_n, low, high):
+        """Stop set for n in [first_n, end_n) and k in [low, high + rows]."""
+        n = np.arange(first_n, end_n)[:, None]
+        k = np.arange(low, high + (end_n - first_n) + 1)[None, :]
+        n_grid, k_grid = np.broadcast_arrays(n, k)
+        statistics = SufficientStatistics(n=n_grid, sum_x=np.zeros(n_grid.shape), log_ratio=np.zeros(n_grid.shape),
+                                          exceedances=k_grid)
+        self.grid = rule.stops(statistics, *self.arguments, check_every=self.check_every) & (k_grid <= n_grid)
+        self.first_n, self.first_k = first_n, low
+
+    def row(self, n, low, high):
+        return self.grid[n - self.first_n, low - self.first_k: high - self.first_k + 1]
+
+
+def _pass_fail_covers(n, k, p, accuracy):
+    """Does the final pass-fail interval at (n, k) contain p? (methods + accuracy, as the formulas compute it)."""
+    if n.size == 0:
+        return np.zeros(0, bool)
+    statistics = SufficientStatistics(n=n, sum_x=np.zeros(n.shape), log_ratio=np.zeros(n.shape), exceedances=k)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_odds = estimate_from_statistics(statistics, 1.0, "pass-fail").log_odds
+    interval = _accuracy.probability_interval(log_odds, accuracy)
+    return (interval.low <= p) & (p <= interval.high)
+
+
+def _distribution_figures(distribution):
+    """Mean, sd (of N given N <= n_max) and quantiles from P(N = n)."""
+    n = np.arange(distribution.size)
+    stopped = distribution.sum()
+    if stopped <= 0:
+        return math.nan, math.nan, {level: math.inf for level in QUANTILE_LEVELS}
+    mean = float(np.dot(n, distribution) / stopped)
+    variance = float(np.dot((n - mean) ** 2, distribution) / stopped)
+    cdf = np.cumsum(distribution)
+    quantiles = {}
+    for level in QUANTILE_LEVELS:
+        # a relative slack of 1e-12 keeps rounding in the cumulative sum from moving a quantile
+        index = int(np.searchsorted(cdf, level * (1.0 - 1e-12)))
+        quantiles[level] = float(index) if index < distribution.size else math.inf
+    return mean, math.sqrt(max(variance, 0.0)), quantiles
+
+
+def _exact_result(*, probability, n_star, pilot, n_max, confidence, stop_z, distribution, beyond, coverage):
+    mean, sd, quantiles = _distribution_figures(distribution)
+    return OperatingCharacteristics(
+        method="pass-fail", exact=True, probability=float(probability), n_star=n_star, pilot=pilot, n_max=int(n_max),
+        confidence=float(confidence), stop_z=stop_z, expected_units=mean, sd_units=sd, quantiles=quantiles,
+        beyond=float(beyond), coverage=float(coverage), quantiles_se={level: 0.0 for level in QUANTILE_LEVELS},
+        distribution=distribution,
+    )
+
+
+# --------------------------------------------------------------------------- Monte Carlo
+
+
+@dataclass(frozen=True)
+class _Plan:
+    """Everything one simulated run needs (internal)."""
+
+    threshold: float
+    shape: float
+    scale: float
+    method: str
+    accuracy: float
+    stop_confidence: float
+    pilot: int
+    n_max: int
+    check_every: int
+    probability: float
+
+    @property
+    def known_shape(self):
+        return self.shape if self.method == "known-shape" else None
+
+    def stops(self, statistics):
+        return rule.stops(statistics, self.threshold, self.accuracy, self.stop_confidence, self.pilot,
+                          self.method, self.known_shape, self.check_every)
+
+    def covers(self, statistics):
+        with np.errstate(all="ignore"):
+            log_odds = estimate_from_statistics(statistics, self.threshold, self.method, self.known_shape).log_odds
+        interval = _accuracy.probability_interval(log_odds, self.accuracy)
+        return (interval.low <= self.probability) & (self.probability <= interval.high)
+
+
+class _SigmaScreen:
+    """A conservative lower bound on σ̂² as a function of t̂ = c/ŝ (known-shape).
+
+    The known-shape σ̂² depends on the data only through t̂ = threshold·shape·n/Σx.
+    It is tabulated with ``rule.rule_sigma2`` on a fine log grid of t around
+    the planning value; every grid cell gets the smaller of its two end values,
+    lowered near each local minimum of the table by the rise to the
+    neighbouring points (a parabola cannot dip below its lowest grid value by
+    more than a quarter of that) and by a relative 1e-6 for rounding. Running
+    minima from both ends make the bound unimodal, so for each n the t̂ that
+    can possibly stop form one interval. Outside the table every prefix is a
+    candidate. ``rule.stops`` then decides on the candidates only.
+    """
+
+    points = 4001
+    half_width = 9.0  # in log t around the planning value
+
+    def __init__(self, plan: _Plan):
+        self.plan = plan
+        t_plan = plan.threshold / plan.scale
+        self.t = t_plan * np.exp(np.linspace(-self.half_width, self.half_width, self.points))
+        statistics = SufficientStatistics(
+            n=np.ones(self.points), sum_x=plan.threshold * plan.shape / self.t,
+            log_ratio=np.zeros(self.points), exceedances=np.zeros(self.points),
+        )
+        sigma2 = rule.rule_sigma2(statistics, plan.threshold, plan.method, plan.shape)
+        sigma2 = np.where(np.isfinite(sigma2), sigma2, np.inf)
+        cell = np.minimum(sigma2[:-1], sigma2[1:])
+        dip = np.zeros_like(cell)
+        inner = np.arange(1, self.points - 1)
+        local_min = inner[(sigma2[inner] <= sigma2[inner - 1]) & (sigma2[inner] <= sigma2[inner + 1])]
+        rise = np.maximum(sigma2[local_min - 1], sigma2[local_min + 1]) - sigma2[local_min]
+        for side in (local_min - 1, local_min):  # the two cells touching each local minimum
+            dip[side] = np.maximum(dip[side], rise)
+        bound = (cell - dip) * (1.0 - 1e-6)
+        lowest = int(np.argmin(bound))
+        self.left = np.minimum.accumulate(bound[: lowest + 1])          # non-increasing
+        self.right = np.minimum.accumulate(bound[lowest:][::-1])[::-1]   # non-decreasing
+        self.lowest = lowest
+        self.factor = rule.boundary_factor(plan.accuracy, plan.stop_confidence)
+
+    def candidates(self, n, sum_x):
+        """Mask of the prefixes where STOP is possible; ``n`` 1-D (one per column), ``sum_x`` rows × columns.
+
+        t̂ = c a n / Σx, so each t-interval is turned into an interval of Σx per
+        column and the rows are compared with it.
+        """
+        level = n / self.factor * (1.0 + 1e-9)
+        first_cell = np.searchsorted(-self.left, -level, side="left")            # cells before it: bound > level
+        last_cell = self.lowest + np.searchsorted(self.right, level, side="right") - 1
+        possible = first_cell <= last_cell
+        scale = self.plan.threshold * self.plan.shape * n
+        t_low = self.t[np.minimum(first_cell, self.points - 1)] * (1.0 - 1e-9)
+        t_high = self.t[np.minimum(last_cell + 1, self.points - 1)] * (1.0 + 1e-9)
+        sum_high = np.where(possible, scale / t_low, -np.inf)   # t̂ >= t_low
+        sum_low = np.where(possible, scale / t_high, np.inf)    # t̂ <= t_high
+        outside = (sum_x > scale / (self.t[0] * (1.0 - 1e-9))) | (sum_x < scale / (self.t[-1] * (1.0 + 1e-9)))
+        return outside | ((sum_x >= sum_low) & (sum_x <= sum_high))
+
+
+class _Runs:
+    """Running sufficient statistics of the replications still on test (one chunk)."""
+
+    def __init__(self, plan: _Plan, rng, count):
+        self.plan = plan
+        self.reference = plan.shape * plan.scale  # logs of x / mean keep the log-ratio digits
+        pilot = plan.pilot
+        if plan.method == "known-shape":
+            # the pilot total of m gamma(a, s) units is one gamma(m a, s) draw
+            self.sum_x = rng.gamma(pilot * plan.shape, plan.scale, size=count)
+            self.sum_log = np.zeros(count)
+            self.exceedances = np.zeros(count)
+        else:
+            self.sum_x, self.sum_log, self.exceedances = np.zeros(count), np.zeros(count), np.zeros(count)
+            for start in range(0, pilot, _LONGEST_BLOCK):  # in blocks, so a long pilot stays in bounded memory
+                x = rng.gamma(plan.shape, plan.scale, size=(count, min(_LONGEST_BLOCK, pilot - start)))
+                self.sum_x += x.sum(axis=1)
+                self.sum_log += np.log(x / self.reference).sum(axis=1)
+                self.exceedances += (x > plan.threshold).sum(axis=1)
+
+    def prefix_statistics(self, x, n):
+        """SufficientStatistics of the prefixes extended by the units ``x`` (rows × block)."""
+        sum_x = self.sum_x[:, None] + np.cumsum(x, axis=1)
+        shape = sum_x.shape
+        if self.plan.method == "known-shape":
+            zero = np.broadcast_to(0.0, shape)  # known-shape needs n and Σx only
+            self._block = (sum_x, None, None)
+            return SufficientStatistics(n=np.broadcast_to(n, shape), sum_x=sum_x, log_ratio=zero, exceedances=zero)
+        sum_log = self.sum_log[:, None] + np.cumsum(np.log(x / self.reference), axis=1)
+        exceedances = self.exceedances[:, None] + np.cumsum(x > self.plan.threshold, axis=1)
+        self._block = (sum_x, sum_log, exceedances)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            log_ratio = np.maximum(np.log(sum_x / (n * self.reference)) - sum_log / n, 0.0)
+        return SufficientStatistics(n=np.broadcast_to(n, shape), sum_x=sum_x, log_ratio=log_ratio,
+                                    exceedances=exceedances)
+
+    def pilot_statistics(self):
+        n = np.full(self.sum_x.shape, float(self.plan.pilot))
+        if self.plan.method == "known-shape":
+            zero = np.zeros(self.sum_x.shape)
+            return SufficientStatistics(n=n, sum_x=self.sum_x, log_ratio=zero, exceedances=zero)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            log_ratio = np.maximum(np.log(self.sum_x / (n * self.reference)) - self.sum_log / n, 0.0)
+        return SufficientStatistics(n=n, sum_x=self.sum_x, log_ratio=log_ratio, exceedances=self.exceedances)
+
+    def keep(self, rows, column=None):
+        """Keep only ``rows``; with ``column``, first move the totals to that unit of the last block."""
+        if column is not None:
+            sum_x, sum_log, exceedances = self._block
+            self.sum_x = sum_x[:, column]
+            if sum_log is not None:
+                self.sum_log, self.exceedances = sum_log[:, column], exceedances[:, column]
+        self.sum_x = self.sum_x[rows]
+        self.exceedances = self.exceedances[rows]
+        self.sum_log = self.sum_log[rows]
+
+
+def _take(statistics, mask):
+    """The statistics at the True entries of ``mask``, as 1-D arrays."""
+    return SufficientStatistics(*(np.asarray(getattr(statistics, name))[mask]
+                                  for name in ("n", "sum_x", "log_ratio", "exceedances")))
+
+
+def _decide(plan, statistics, screen):
+    """STOP mask over a block: ``rule.stops`` on every prefix, or only on the screen's candidates."""
+    if screen is None:
+        return plan.stops(statistics)
+    n = np.asarray(statistics.n)[0]
+    candidates = screen.candidates(n.astype(float), statistics.sum_x)
+    candidates &= rule.is_check_point(n, plan.pilot, plan.check_every)
+    decision = np.zeros(candidates.shape, bool)
+    if candidates.any():
+        decision[candidates] = plan.stops(_take(statistics, candidates))
+    return decision
+
+
+def _simulate_chunk(plan: _Plan, rng, count, screen, common_numbers=False):
+    """N and coverage of ``count`` replications.
+
+    With ``common_numbers`` every block draws units for all ``count`` runs, stopped
+    or not, so that run i sees the same lifetimes whatever the boundary
+    (common random numbers for calibration); otherwise only the runs still
+    on test draw.
+    """
+    units = np.full(count, plan.n_max + 1, dtype=np.int64)
+    covered = np.zeros(count, bool)
+    runs = _Runs(plan, rng, count)
+    alive = np.arange(count)
+    pilot_statistics = runs.pilot_statistics()
+    stopped = plan.stops(pilot_statistics)
+    if stopped.any():
+        units[alive[stopped]] = plan.pilot
+        covered[alive[stopped]] = plan.covers(_take(pilot_statistics, stopped))
+    alive = alive[~stopped]
+    runs.keep(~stopped)
+    done, block = plan.pilot, _FIRST_BLOCK
+    while alive.size and done < plan.n_max:
+        width = min(block, plan.n_max - done)
+        n = np.arange(done + 1, done + width + 1, dtype=float)
+        if common_numbers:
+            x = rng.gamma(plan.shape, plan.scale, size=(count, width))[alive]
+        else:
+            x = rng.gamma(plan.shape, plan.scale, size=(alive.size, width))
+        statistics = runs.prefix_statistics(x, n)
+        decision = _decide(plan, statistics, screen)
+        rows = decision.any(axis=1)
+        if rows.any():
+            first = np.argmax(decision[rows], axis=1)
+            at_stop = np.zeros(decision.shape, bool)
+            at_stop[np.flatnonzero(rows), first] = True
+            units[alive[rows]] = done + 1 + first
+            covered[alive[rows]] = plan.covers(_take(statistics, at_stop))
+        runs.keep(~rows, width - 1)
+        alive = alive[~rows]
+        done += width
+        block = min(2 * block, _LONGEST_BLOCK)
+    return units, covered
+
+
+def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known-shape", *,
+             replications=10_000, seed=DEFAULT_SEED, n_max=None, check_every=1, stop_z=None,
+             screen=True, common_numbers=False, progress=None) -> OperatingCharacteristics:
+    """Monte Carlo operating characteristics of the stopping rule under a gamma guess.
+
+    Parameters
+    ----------
+    threshold, shape, scale : float
+        The planning guess: lifetimes ~ gamma(shape, scale), threshold c.
+    accuracy, confidence, pilot : float, float, int
+        The plan.
+    method : {'known-shape', 'fitted-shape', 'pass-fail'}
+        The estimator whose stopping rule is simulated (known-shape is told
+        the guessed shape).
+    replications : int
+        Simulated test runs; memory is bounded by simulating them in chunks
+        of 8,192 and drawing at most 64 units per run at a time.
+    seed : int
+        Seed of the numpy Generator: the same seed gives the same figures.
+    n_max : int, optional
+        A run not stopped by n_max counts as "N > n_max" (default ``default_n_max``).
+    stop_z : float, optional
+        Critical value for the stopping boundary instead of z(confidence).
+    screen : bool
+        known-shape only: call ``rule.stops`` only where a conservative lower
+        bound on σ̂² allows STOP (same results, much faster; see ``_SigmaScreen``).
+    common_numbers : bool
+        Let every run see the same lifetimes whatever the stopping boundary
+        (slower; used by calibration, so coverage(z') is compared on the same data).
+    progress : callable, optional
+        Called with the fraction done (0..1).
+
+    Returns
+    -------
+    OperatingCharacteristics
+        With Monte Carlo standard errors: sd/√R for E[N]; √(c(1-c)/R) for
+        proportions; the delta method for the sd of N; for the quantiles half
+        the distance between the order statistics at R·level ± √(R·level(1-level)).
+    """
+    _check_plan(accuracy, confidence, pilot)
+    model = get_method(method)
+    replications = int(replications)
+    if replications < 1:
+        raise ValueError(f"replications must be at least 1 (got {replications})")
+    tail = tail_probability(threshold, shape, scale)
+    p = float(tail.p)
+    sigma2 = float(model_sigma2(model.name, threshold, shape, scale))
+    if not (0 < p < 1 and 0 < sigma2 < math.inf):
+        raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
+    n_star = float(_accuracy.units_for_accuracy(sigma2, accuracy, confidence))
+    n_max = default_n_max(n_star, pilot) if n_max is None else int(n_max)
+    if n_max < pilot:
+        raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
+    plan = _Plan(float(threshold), float(shape), float(scale), model.name, float(accuracy),
+                 _stop_confidence(confidence, stop_z), int(pilot), n_max, int(check_every), p)
+    sigma_screen = _SigmaScreen(plan) if (screen and plan.method == "known-shape") else None
+    rng = np.random.default_rng(seed)
+    units, covered = [], []
+    for start in range(0, replications, _CHUNK_REPLICATIONS):
+        count = min(_CHUNK_REPLICATIONS, replications - start)
+        with np.errstate(all="ignore"):
+            chunk_units, chunk_covered = _simulate_chunk(plan, rng, count, sigma_screen, common_numbers)
+        units.append(chunk_units)
+        covered.append(chunk_covered)
+        if progress is not None:
+            progress((start + count) / replications)
+    return _simulated_result(plan, n_star, confidence, _stop_z(confidence, stop_z), seed,
+                             np.concatenate(units), np.concatenate(covered))
+
+
+def reference_simulation(threshold, shape, scale, accuracy, confidence, pilot, method="known-shape", *,
+                         replications=200, seed=DEFAULT_SEED, n_max=None, check_every=1):
+    """The straightforward simulation, one replication at a time (slow; the check for ``simulate``).
+
+    Each replication draws a whole log of n_max lifetimes, takes
+    ``SufficientStatistics.running`` of it and the first STOP of ``rule.stops``.
+    Returns (units, covered) arrays; N = n_max + 1 means it did not stop.
+    """
+    _check_plan(accuracy, confidence, pilot)
+    p = float(tail_probability(threshold, shape, scale).p)
+    sigma2 = float(model_sigma2(method, threshold, shape, scale))
+    n_max = default_n_max(float(_accuracy.units_for_accuracy(sigma2, accuracy, confidence)), pilot) if n_max is None else n_max
+    known = shape if method == "known-shape" else None
+    rng = np.random.default_rng(seed)
+    units = np.full(replications, n_max + 1, dtype=np.int64)
+    covered = np.zeros(replications, bool)
+    for i in range(replications):
+        log = rng.gamma(shape, scale, size=n_max)
+        statistics = SufficientStatistics.running(log, threshold)
+        with np.errstate(all="ignore"):
+            decision = rule.stops(statistics, threshold, accuracy, confidence, pilot, method, known, check_every)
+        if decision.any():
+            index = int(np.argmax(decision))
+            units[i] = index + 1
+            final = SufficientStatistics.of(log[: index + 1], threshold)
+            log_odds = estimate_from_statistics(final, threshold, method, known).log_odds
+            interval = _accuracy.probability_interval(log_odds, accuracy)
+            covered[i] = bool(interval.low <= p <= interval.high)
+    return units, covered
+
+
+def _simulated_result(plan, n_star, confidence, stop_z, seed, units, covered):
+    replications = units.size
+    stopped = units <= plan.n_max
+    beyond = 1.0 - stopped.mean()
+    coverage = float(covered.mean())
+    stopped_units = units[stopped].astype(float)
+    if stopped_units.size:
+        mean = float(stopped_units.mean())
+        sd = float(stopped_units.std(ddof=1)) if stopped_units.size > 1 else 0.0
+        mean_se = sd / math.sqrt(stopped_units.size)
+        fourth = float(np.mean((stopped_units - mean) ** 4))
+        sd_se = math.sqrt(max(fourth - sd ** 4, 0.0) / stopped_units.size) / (2 * sd) if sd > 0 else 0.0
+    else:
+        mean = sd = mean_se = sd_se = math.nan
+    quantiles, quantiles_se = _sample_quantiles(units, plan.n_max)
+    return OperatingCharacteristics(
+        method=plan.method, exact=False, probability=plan.probability, n_star=n_star, pilot=plan.pilot,
+        n_max=plan.n_max, confidence=float(confidence), stop_z=stop_z, expected_units=mean, sd_units=sd,
+        quantiles=quantiles, beyond=float(beyond), coverage=coverage, replications=int(replications), seed=seed,
+        expected_units_se=mean_se, sd_units_se=sd_se, quantiles_se=quantiles_se,
+        beyond_se=math.sqrt(beyond * (1 - beyond) / replications),
+        coverage_se=math.sqrt(coverage * (1 - coverage) / replications), units=units, covered=covered,
+    )
+
+
+def _sample_quantiles(units, n_max):
+    """Quantiles of N (inf beyond n_max) and order-statistic standard errors."""
+    ordered = np.sort(units)
+    count = ordered.size
+    quantiles, errors = {}, {}
+    for level in QUANTILE_LEVELS:
+        rank = math.ceil(level * count) - 1  # smallest n with empirical P(N <= n) >= level
+        value = float(ordered[max(rank, 0)])
+        quantiles[level] = value if value <= n_max else math.inf
+        spread = math.sqrt(count * level * (1 - level))
+        low = ordered[max(0, math.floor(level * count - spread) - 1)]
+        high = ordered[min(count - 1, math.ceil(level * count + spread) - 1)]
+        errors[level] = float(high - low) / 2.0 if high <= n_max else math.inf
+    return quantiles, errors
+
+
+# --------------------------------------------------------------------------- dispatch, calibration, comparison
+
+
+def _exact_from_guess(threshold, shape, scale, accuracy, confidence, pilot, **options):
+    options.pop("replications", None)
+    options.pop("seed", None)
+    options.pop("screen", None)
+    p = float(tail_probability(threshold, shape, scale).p)
+    if not 0 < p < 1:
+        raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
+    return pass_fail_exact(p, accuracy, confidence, pilot, **options)
+
+
+def _simulated(method):
+    def run(threshold, shape, scale, accuracy, confidence, pilot, **options):
+        return simulate(threshold, shape, scale, accuracy, confidence, pilot, method, **options)
+
+    return run
+
+
+_BY_METHOD = {
+    "pass-fail": _exact_from_guess,
+    "known-shape": _simulated("known-shape"),
+    "fitted-shape": _simulated("fitted-shape"),
+}
+
+
+def operating_characteristics(threshold, shape, scale, accuracy, confidence, pilot, method="pass-fail",
+                              **options) -> OperatingCharacteristics:
+    """Operating characteristics for one method: exact for pass-fail, simulated otherwise.
+
+    ``options`` are passed on to ``pass_fail_exact`` (n_max, check_every,
+    stop_z, progress) or ``simulate`` (replications, seed, n_max, ...);
+    replications and seed are ignored by the exact pass-fail computation.
+    """
+    return _BY_METHOD[get_method(method).name](threshold, shape, scale, accuracy, confidence, pilot, **options)
+
+
+def calibrate(evaluate, confidence, *, step=0.02, largest_inflation=3.0, resolution=1e-3,
+              progress=None) -> Calibration:
+    """Smallest critical value z' >= z whose coverage reaches the nominal confidence.
+
+    Parameters
+    ----------
+    evaluate : callable
+        ``evaluate(stop_z) -> OperatingCharacteristics`` for the plan with the
+        stopping boundary (z'/log d)² σ̂²; e.g.
+        ``lambda z: pass_fail_exact(p, d, conf, m, stop_z=z)``. For simulated
+        methods keep the seed fixed, so that every z' sees the same random
+        numbers (common random numbers make coverage(z') nearly monotone).
+    confidence : float
+        Nominal confidence; z = Φ⁻¹((1 + confidence)/2).
+    step : float
+        Scan z' = z (1 + step·j), j = 0, 1, ...; the first point that reaches the
+        nominal coverage is then refined by bisection to ``resolution``·z.
+    largest_inflation : float
+        Give up (``reached = False``) beyond z' = largest_inflation · z.
+
+    Notes
+    -----
+    Exact pass-fail coverage is a step function of z' and need not be
+    monotone; the result is the smallest z' on the scan grid, refined
+    between it and the previous grid point, so z_calibrated - step falls short
+    of nominal while z_calibrated reaches it. For simulated methods
+    ``z_range`` brackets z_calibrated by the z' where coverage ± 2 standard
+    errors reaches nominal.
+    """
+    z = float(_accuracy.critical_value(confidence))
+    seen = {}
+
+    def at(value):
+        key = round(value, 12)
+        if key not in seen:
+            seen[key] = evaluate(value)
+        return seen[key]
+
+    def reaches(value, slack=0.0):
+        result = at(value)
+        return result.coverage + slack * result.coverage_se >= confidence
+
+    at_z = at(z)
+    steps = int(math.ceil((largest_inflation - 1.0) / step))
+    found = None
+    for j in range(steps + 1):
+        value = z * (1.0 + step * j)
+        if progress is not None:
+            progress(min(0.8, 0.8 * j / max(1, steps)))
+        if reaches(value):
+            found = j
+            break
+    if found is None:
+        return Calibration(z, math.nan, math.nan, at_z, at_z, step * z, None, False)
+    high = z * (1.0 + step * found)
+    low = z * (1.0 + step * (found - 1)) if found > 0 else None
+    if low is not None:
+        while high - low > resolution * z:
+            middle = 0.5 * (low + high)
+            if reaches(middle):
+                high = middle
+            else:
+                low = middle
+    if not at_z.exact:
+        # scan on until coverage - 2 se reaches nominal too, for the uncertainty of z'
+        for j in range(found, steps + 1):
+            if reaches(z * (1.0 + step * j), slack=-2.0):
+                break
+    if progress is not None:
+        progress(1.0)
+    calibrated = at(high)
+    z_range = None if at_z.exact else _z_range(seen, confidence)
+    return Calibration(z, high, confidence_for_z(high), at_z, calibrated, (high - low) if low else 0.0, z_range, True)
+
+
+def _z_range(seen, confidence):
+    """Smallest evaluated z' with coverage + 2 se >= nominal, and with coverage - 2 se >= nominal."""
+    values = sorted(seen)
+    optimistic = next((z for z in values if seen[z].coverage + 2 * seen[z].coverage_se >= confidence), math.nan)
+    pessimistic = next((z for z in values if seen[z].coverage - 2 * seen[z].coverage_se >= confidence), math.nan)
+    return optimistic, pessimistic
+
+
+def compare_methods(threshold, shape, scale, accuracy, confidence, pilot, *, replications=10_000,
+                    seed=DEFAULT_SEED, fitted_replications=None, progress=None) -> MethodComparison:
+    """n*, E[N], coverage... of the three methods at the same planning guess.
+
+    pass-fail exact; known-shape and fitted-shape simulated with the same seed
+    (``fitted_replications`` defaults to ``replications``).
+    """
+    plan = (threshold, shape, scale, accuracy, confidence, pilot)
+    counts = {"known-shape": replications, "fitted-shape": fitted_replications or replications}
+    weights = {"pass-fail": 0.05, "known-shape": 0.25, "fitted-shape": 0.70}
+    results, done = {}, 0.0
+    for method in ("pass-fail", "known-shape", "fitted-shape"):
+        def report(fraction, base=done, weight=weights[method]):
+            if progress is not None:
+                progress(base + weight * fraction)
+
+        options = {"progress": report}
+        if method in counts:
+            options.update(replications=counts[method], seed=seed)
+        results[method] = operating_characteristics(*plan, method, **options)
+        done += weights[method]
+    return MethodComparison(results)
