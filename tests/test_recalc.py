@@ -1,6 +1,7 @@
 """Headless recalculation and the cached-value writer."""
 from __future__ import annotations
 
+import types
 import zipfile
 
 import numpy as np
@@ -186,3 +187,22 @@ def test_set_formula_rejects_ragged_results():
         set_formula(sheet, "A1", "=X()", [[1, 2], [3]], {})
     with pytest.raises(ValueError, match="starts with"):
         set_formula(sheet, "A1", "X()", 1, {})
+
+
+def test_declared_ranges_stay_2d_and_error_cells_arrive_as_text(tmp_path, monkeypatch):
+    seen = []
+
+    def first_cell(values, scalar):
+        seen.append((values, scalar))
+        return 1.0
+
+    first_cell.tailstop_spec = types.SimpleNamespace(ranges=("values",), argument_help={"values": "", "scalar": ""})
+    monkeypatch.setitem(tailstop.sheet.FORMULAS, "FIRST_CELL", first_cell)
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet["A1"], sheet["A2"] = 4.5, "=1/0"
+    sheet["C1"] = "=FIRST_CELL(A1,A1)"
+    sheet["C2"] = "=FIRST_CELL(A2:A2,A2)"
+    book.save(tmp_path / "cells.xlsx")
+    recalc(tmp_path / "cells.xlsx", tmp_path / "cells-values.xlsx")
+    assert sorted(seen, key=repr) == sorted([([[4.5]], 4.5), ([["#DIV/0!"]], "#DIV/0!")], key=repr)
