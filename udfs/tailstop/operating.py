@@ -157,7 +157,8 @@ class OperatingCharacteristics:
         ]
         for level in QUANTILE_LEVELS:
             rows.append((f"N {level:.0%} quantile", self.quantiles[level], se(self.quantiles_se.get(level, 0.0))))
-        rows.append((f"P(N > {self.n_max:,})", self.beyond, se(self.beyond_se)))
+        rows.append(("P(N > n_max)", self.beyond, se(self.beyond_se)))
+        rows.append(("n_max (units examined)", self.n_max, None))
         rows.append(("coverage", self.coverage, se(self.coverage_se)))
         return rows
 
@@ -805,6 +806,7 @@ def _exact_from_guess(threshold, shape, scale, accuracy, confidence, pilot, **op
     options.pop("replications", None)
     options.pop("seed", None)
     options.pop("screen", None)
+    options.pop("common_numbers", None)
     p = float(tail_probability(threshold, shape, scale).p)
     if not 0 < p < 1:
         raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
