@@ -22,5 +22,11 @@ from .sheet_estimate import (  # noqa: F401
     UNITS_REQUIRED_FROM_P,
 )
 from .sheet_notes import TAIL_METHOD_NOTES  # noqa: F401
+from .sheet_planning import (  # noqa: F401
+    PLAN_COVERAGE,
+    PLAN_EXPECTED_UNITS,
+    PLAN_SUMMARY,
+    PLAN_SUMMARY_FROM_P,
+)
 
 __all__ = ["FORMULAS", *FORMULAS]

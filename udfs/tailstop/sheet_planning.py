@@ -1,0 +1,151 @@
+"""Formulas: what the sequential stopping rule will do, planned from guessed parameters.
+
+Every call is bounded in time: the exact pass-fail figures are computed for
+plans up to ``EXACT_UNITS_LIMIT`` units, the simulated ones for at most
+``REPLICATIONS_LIMIT`` replications and at most ``WORK_LIMIT[method]``
+replications × units. Beyond that the formula answers with a ``#TAILSTOP!``
+text saying what to change (or to use ``tailstop plan`` at the command line).
+"""
+from __future__ import annotations
+
+import math
+
+from . import accuracy as _accuracy
+from . import cells
+from .formula import formula
+from .methods import METHOD_NAMES, pass_fail_sigma2_from_p
+from .operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
+from .sheet_estimate import HELP, planning_sigma2
+
+EXACT_UNITS_LIMIT = 10_000
+REPLICATIONS_LIMIT = 100_000
+DEFAULT_REPLICATIONS = {"known-shape": 10_000, "fitted-shape": 1_000}
+# replications × units per run a cell may simulate (about a second or two on one core)
+WORK_LIMIT = {"known-shape": 20_000_000, "fitted-shape": 100_000}
+SEED_LIMIT = 2**63 - 1
+
+PLAN_HELP = {
+    "threshold": HELP["threshold"],
+    "shape": "Guessed gamma shape a > 0",
+    "scale": "Guessed gamma scale s > 0, unit of the lifetimes",
+    "accuracy": HELP["accuracy"],
+    "confidence": HELP["confidence"],
+    "pilot": "Pilot sample: units tested before the rule is first consulted (a whole number >= 2)",
+    "method": HELP["method"],
+    "replications": "Optional: simulated test runs for known-shape / fitted-shape (default 10,000 / 1,000)",
+    "seed": "Optional: seed of the simulation; the same seed gives the same figures",
+}
+
+
+def _pilot(value):
+    return cells.whole_number(value, "pilot", minimum=2, maximum=EXACT_UNITS_LIMIT)
+
+
+def _exact_limit(n_star, pilot):
+    if max(n_star, pilot) > EXACT_UNITS_LIMIT:
+        raise cells.InputError(
+            f"this plan needs about {math.ceil(max(n_star, pilot)):,} units; a cell computes plans up to "
+            f"{EXACT_UNITS_LIMIT:,} units: ask for less accuracy, or run `tailstop plan`")
+
+
+def _replications(value, method, n_star, pilot):
+    units = max(n_star, pilot)
+    affordable = int(WORK_LIMIT[method] // units)
+    if cells.is_missing(value):
+        replications = min(DEFAULT_REPLICATIONS[method], affordable)
+        if replications < 100:
+            raise cells.InputError(
+                f"this plan needs about {math.ceil(units):,} units per run; a cell simulates at most "
+                f"{WORK_LIMIT[method]:,} replications × units for {method}: ask for less accuracy, or run `tailstop plan`")
+        return replications
+    replications = cells.whole_number(value, "replications", minimum=1, maximum=REPLICATIONS_LIMIT)
+    if replications > affordable:
+        raise cells.InputError(
+            f"replications × units is capped at {WORK_LIMIT[method]:,} for {method} so that the cell stays quick; "
+            f"this plan needs about {math.ceil(units):,} units per run: use at most {max(affordable, 1):,} replications")
+    return replications
+
+
+def _seed(value):
+    if cells.is_missing(value):
+        return DEFAULT_SEED
+    return cells.whole_number(value, "seed", minimum=0, maximum=SEED_LIMIT)
+
+
+def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed):
+    """Operating characteristics for formula arguments as a spreadsheet passes them."""
+    name = cells.method_name(method, METHOD_NAMES)
+    d, level = cells.accuracy(accuracy), cells.confidence(confidence)
+    sigma2 = planning_sigma2(threshold, shape, scale, name)
+    n_star = float(_accuracy.units_for_accuracy(sigma2, d, level))
+    m = _pilot(pilot)
+    c, a, s = (cells.positive(v, label) for v, label in ((threshold, "threshold"), (shape, "shape"), (scale, "scale")))
+    if name == "pass-fail":
+        _exact_limit(n_star, m)
+        return operating_characteristics(c, a, s, d, level, m, name)
+    count = _replications(replications, name, n_star, m)
+    return operating_characteristics(c, a, s, d, level, m, name, replications=count, seed=_seed(seed))
+
+
+def _number_or_text(value):
+    return value if math.isfinite(value) else "beyond n_max"
+
+
+def summary_table(result):
+    """The 2-column labelled table of PLAN_SUMMARY."""
+    rows = [["method", result.method], ["figures", "exact" if result.exact else "simulated"]]
+    if not result.exact:
+        rows += [["replications", result.replications], ["seed", result.seed]]
+    rows.append(["true probability p", result.probability])
+    for label, value, error in result.figures():
+        rows.append([label, _number_or_text(value)])
+        if error is not None:
+            rows.append([f"{label}: MC std. error", _number_or_text(error)])
+    rows.append(["nominal confidence", result.confidence])
+    return rows
+
+
+PLAN_ARGUMENTS = dict(
+    threshold=PLAN_HELP["threshold"], shape=PLAN_HELP["shape"], scale=PLAN_HELP["scale"],
+    accuracy=PLAN_HELP["accuracy"], confidence=PLAN_HELP["confidence"], pilot=PLAN_HELP["pilot"],
+    method=PLAN_HELP["method"], replications=PLAN_HELP["replications"], seed=PLAN_HELP["seed"],
+)
+
+
+def _finite(value, what):
+    if not math.isfinite(value):
+        raise cells.InputError(f"no run stopped within the units examined, so {what} is not defined; "
+                               "check the guess or ask for less accuracy")
+    return value
+
+
+@formula(**PLAN_ARGUMENTS)
+def PLAN_EXPECTED_UNITS(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None):
+    """Expected number of units E[N] the sequential rule will test under the guessed gamma parameters."""
+    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed)
+    return _finite(result.expected_units, "E[N]")
+
+
+@formula(**PLAN_ARGUMENTS)
+def PLAN_COVERAGE(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None):
+    """Real coverage of the final interval of the sequential rule under the guessed gamma parameters."""
+    return plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed).coverage
+
+
+@formula(returns="table", **PLAN_ARGUMENTS)
+def PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None):
+    """Table (2 columns) of what the sequential rule will do: n*, E[N], sd and quantiles of N, coverage."""
+    return summary_table(plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed))
+
+
+@formula(p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], pilot=PLAN_HELP["pilot"])
+def PLAN_SUMMARY_FROM_P(p_guess, accuracy, confidence, pilot):
+    """Table (2 columns) of what the pass-fail sequential rule will do, from a guessed probability (exact)."""
+    p = cells.number(p_guess, "p_guess")
+    if not 0 < p < 1:
+        raise cells.InputError(f"p_guess must be strictly between 0 and 1 (got {p:g})")
+    d, level = cells.accuracy(accuracy), cells.confidence(confidence)
+    n_star = float(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level))
+    m = _pilot(pilot)
+    _exact_limit(n_star, m)
+    return summary_table(pass_fail_exact(p, d, level, m))
