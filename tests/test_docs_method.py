@@ -11,8 +11,8 @@ from pathlib import Path
 
 import pytest
 
-from tailstop import notes
-from tailstop.sheet import TAIL_PROB, UNITS_REQUIRED
+from tailstop import notes, operating
+from tailstop.sheet import PLAN_SUMMARY_FROM_P, TAIL_PROB, UNITS_REQUIRED
 
 DOCS = Path(__file__).resolve().parents[1] / "docs"
 PAGES = ("method.md", "getting-started.md", "cautions.md")
@@ -49,6 +49,22 @@ def test_method_warning_thresholds_match_the_code():
     assert notes.FIT_LEVEL == 0.05 and "fit check gives p < 0.05" in text
     assert notes.SHAPE_LEVEL == 0.05 and "rejects at the 5 % level" in text
     assert notes.MIN_PER_SIDE == 5 and "fewer than 5 units beyond the threshold" in text
+
+
+def test_method_planning_example():
+    text = " ".join(page("method.md").split())
+    assert "`PLAN_SUMMARY_FROM_P(0.9, 1.5, 0.95, 10)` gives n* = 260, E[N] = 261.2 and an exact coverage of 0.946" in text
+    table = dict(PLAN_SUMMARY_FROM_P(0.9, 1.5, 0.95, 10))
+    assert table["fixed-size units n*"] == 260
+    assert round(table["expected units E[N]"], 1) == 261.2
+    assert round(table["coverage"], 3) == 0.946
+    assert "raises the critical value from 1.960 to 1.975; the coverage is then 0.951" in text
+    assert "about 4 units on average (E[N] = 265.0)" in text
+    calibration = operating.calibrate(lambda z: operating.pass_fail_exact(0.9, 1.5, 0.95, 10, stop_z=z), 0.95)
+    assert (round(calibration.z, 3), round(calibration.z_calibrated, 3)) == (1.960, 1.975)
+    assert round(calibration.calibrated.coverage, 3) == 0.951
+    assert round(calibration.calibrated.expected_units, 1) == 265.0
+    assert round(calibration.calibrated.expected_units - table["expected units E[N]"]) == 4
 
 
 def test_getting_started_figures():
