@@ -66,12 +66,16 @@ def bench_known_shape():
     threshold, shape, scale, accuracy = known_shape_plan()
     plan = (threshold, shape, scale, accuracy, 0.95, 10)
     operating.simulate(*plan, replications=500)  # warm up
-    ours, result = best_of(3, lambda: operating.simulate(*plan, replications=10_000))
-    unscreened, plain_result = best_of(1, lambda: operating.simulate(*plan, replications=10_000, screen=False))
-    assert np.array_equal(result.units, plain_result.units)
+    result = operating.simulate(*plan, replications=10_000)
     variates = int(result.units.sum())
     rng = np.random.default_rng(1)
-    draw, _ = best_of(3, lambda: rng.gamma(shape, scale, size=variates))
+    # interleaved, best of 5 each, so that load from other work on the machine hits both alike
+    ours = draw = math.inf
+    for _ in range(5):
+        ours = min(ours, best_of(1, lambda: operating.simulate(*plan, replications=10_000))[0])
+        draw = min(draw, best_of(1, lambda: rng.gamma(shape, scale, size=variates))[0])
+    unscreened, plain_result = best_of(1, lambda: operating.simulate(*plan, replications=10_000, screen=False))
+    assert np.array_equal(result.units, plain_result.units)
     loop_count = 100
     loop, _ = best_of(1, lambda: operating.reference_simulation(*plan, replications=loop_count))
     loop_10k = loop * 10_000 / loop_count

@@ -236,6 +236,17 @@ def test_screen_gives_exactly_the_runs_of_rule_stops_everywhere(shape, check_eve
     assert np.array_equal(fast.covered, plain.covered)
 
 
+def test_screen_switches_itself_off_if_the_rule_changes(monkeypatch):
+    # if σ̂² ever depends on more than t̂ = c/ŝ, the table is not a bound: every prefix must be checked
+    threshold, shape, scale, accuracy = known_shape_plan(100)
+    real = rule.rule_sigma2
+    monkeypatch.setattr(rule, "rule_sigma2", lambda s, *a, **k: real(s, *a, **k) * (1 + 10 / np.asarray(s.n)))
+    plan = op._Plan(threshold, shape, scale, "known-shape", accuracy, 0.95, 5, 1000, 1, 0.5)
+    assert not op._SigmaScreen(plan).valid
+    monkeypatch.setattr(rule, "rule_sigma2", real)
+    assert op._SigmaScreen(plan).valid
+
+
 def test_simulation_is_reproducible_for_a_seed():
     threshold, shape, scale, accuracy = known_shape_plan(100)
     first = op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=2000, seed=42)

@@ -492,8 +492,8 @@ class _SigmaScreen:
     candidate. ``rule.stops`` then decides on the candidates only.
     """
 
-    points = 4001
-    half_width = 9.0  # in log t around the planning value
+    points = 12001
+    half_width = 6.0  # in log t around the planning value
 
     def __init__(self, plan: _Plan):
         self.plan = plan
@@ -504,7 +504,9 @@ class _SigmaScreen:
             log_ratio=np.zeros(self.points), exceedances=np.zeros(self.points),
         )
         sigma2 = rule.rule_sigma2(statistics, plan.threshold, plan.method, plan.shape)
-        sigma2 = np.where(np.isfinite(sigma2), sigma2, np.inf)
+        self.valid = self._depends_on_t_only(sigma2, statistics)
+        # undefined σ̂² (NaN) gets bound 0: its neighbourhood is always checked exactly
+        sigma2 = np.where(np.isnan(sigma2), 0.0, sigma2)
         cell = np.minimum(sigma2[:-1], sigma2[1:])
         dip = np.zeros_like(cell)
         inner = np.arange(1, self.points - 1)
@@ -518,6 +520,17 @@ class _SigmaScreen:
         self.right = np.minimum.accumulate(bound[lowest:][::-1])[::-1]   # non-decreasing
         self.lowest = lowest
         self.factor = rule.boundary_factor(plan.accuracy, plan.stop_confidence)
+
+    def _depends_on_t_only(self, sigma2, statistics):
+        """The table is valid only if σ̂² is the same at any n for the same t̂ (checked on a few points)."""
+        sample = np.linspace(0, self.points - 1, 9).astype(int)
+        for n in (7.0, 1234.0):
+            other = SufficientStatistics(n=np.full(sample.size, n), sum_x=statistics.sum_x[sample] * n,
+                                         log_ratio=np.zeros(sample.size), exceedances=np.zeros(sample.size))
+            again = rule.rule_sigma2(other, self.plan.threshold, self.plan.method, self.plan.shape)
+            if not np.allclose(again, sigma2[sample], rtol=1e-9, atol=0, equal_nan=True):
+                return False
+        return True
 
     def candidates(self, n, sum_x):
         """Mask of the prefixes where STOP is possible; ``n`` 1-D (one per column), ``sum_x`` rows × columns.
@@ -602,15 +615,31 @@ def _take(statistics, mask):
 
 
 def _decide(plan, statistics, screen):
-    """STOP mask over a block: ``rule.stops`` on every prefix, or only on the screen's candidates."""
+    """STOP mask over a block whose first True per row is the rule's first STOP.
+
+    Without a screen ``rule.stops`` is asked about every prefix; with one only
+    about the screen's candidates (and then only up to each row's first STOP).
+    """
     if screen is None:
         return plan.stops(statistics)
     n = np.asarray(statistics.n)[0]
     candidates = screen.candidates(n.astype(float), statistics.sum_x)
     candidates &= rule.is_check_point(n, plan.pilot, plan.check_every)
+    # Only the first STOP of each row matters: ask about each row's first candidate, then about
+    # the later candidates of the rows where that one was not a STOP.
     decision = np.zeros(candidates.shape, bool)
-    if candidates.any():
-        decision[candidates] = plan.stops(_take(statistics, candidates))
+    rows = np.flatnonzero(candidates.any(axis=1))
+    if rows.size == 0:
+        return decision
+    first = np.argmax(candidates[rows], axis=1)
+    asked = np.zeros(candidates.shape, bool)
+    asked[rows, first] = True
+    decision[asked] = plan.stops(_take(statistics, asked))
+    undecided = np.zeros(candidates.shape[0], bool)
+    undecided[rows[~decision[rows, first]]] = True
+    later = candidates & undecided[:, None] & ~asked
+    if later.any():
+        decision[later] = plan.stops(_take(statistics, later))
     return decision
 
 
@@ -713,6 +742,8 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
     plan = _Plan(float(threshold), float(shape), float(scale), model.name, float(accuracy),
                  _stop_confidence(confidence, stop_z), int(pilot), n_max, int(check_every), p)
     sigma_screen = _SigmaScreen(plan) if (screen and plan.method == "known-shape") else None
+    if sigma_screen is not None and not sigma_screen.valid:
+        sigma_screen = None  # the rule's σ̂² is no longer a function of t̂ alone: check every prefix
     rng = np.random.default_rng(seed)
     units, covered = [], []
     for start in range(0, replications, _CHUNK_REPLICATIONS):
