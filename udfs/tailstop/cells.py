@@ -321,3 +321,201 @@ def method_name(value, choices, default="pass-fail") -> str:
         shown = value if len(value) <= 20 else value[:17] + "..."
         raise InputError(f"method must be one of {', '.join(choices)} (got {shown!r})")
     return text
+
+
+# --------------------------------------------------------------------------- test logs with survivor marks
+
+SURVIVOR_MARK = "+"
+
+
+@dataclass(frozen=True)
+class LogCells:
+    """The units of a test-log range, read down to the first cell that cannot be read.
+
+    A cell holds a lifetime (a number, or numeric text), or a survivor: the
+    time a unit was taken off test without failing, followed by ``+``
+    (``1500+``, the usual censoring notation of reliability logs). Blank
+    cells (empty, or text of spaces only) are skipped.
+
+    Attributes
+    ----------
+    values : ndarray of float
+        One lifetime per unit in reading order; for a survivor, the time it
+        was taken off test.
+    survivors : ndarray of bool
+        True for a unit marked as a survivor.
+    rows, columns : ndarray of int
+        Row and column of each unit, counted from 0 at the top left of the range.
+    n_rows : int
+        Rows in the range.
+    filled_rows : int
+        Rows down to the last one that is not blank (trailing blanks left out).
+    problem_row : int or None
+        Row of the first cell that cannot be used; only the units above it
+        are in ``values``.
+    problem : str or None
+        What is wrong with that cell, e.g. "observations: row 17 holds text 'n/a'".
+    name : str
+    single_column : bool
+    """
+
+    values: np.ndarray
+    survivors: np.ndarray
+    rows: np.ndarray
+    columns: np.ndarray
+    n_rows: int
+    filled_rows: int
+    problem_row: int | None
+    problem: str | None
+    name: str = "observations"
+    single_column: bool = True
+
+    def position(self, unit) -> str:
+        """Where a unit is, as a message names it: 'row 5' or 'row 5, column 2'."""
+        row = int(self.rows[unit]) + 1
+        return f"row {row}" if self.single_column else f"row {row}, column {int(self.columns[unit]) + 1}"
+
+    def refuse(self, units, reason) -> "LogCells":
+        """The log cut at the first unit where ``units`` (bool per unit) is True.
+
+        That unit becomes the problem, its text ``"<name>: <position> <reason(value)>"``.
+        """
+        units = np.asarray(units, dtype=bool)
+        if not units.any():
+            return self
+        first = int(np.argmax(units))
+        text = f"{self.name}: {self.position(first)} {reason(float(self.values[first]))}"
+        keep = slice(0, first)
+        return LogCells(self.values[keep], self.survivors[keep], self.rows[keep], self.columns[keep],
+                        self.n_rows, self.filled_rows, int(self.rows[first]), text, self.name, self.single_column)
+
+    def for_method(self, method, threshold) -> "LogCells":
+        """The log cut at the first survivor the method cannot use.
+
+        pass-fail uses a survivor taken off at or beyond the threshold (it
+        counts as beyond it) and refuses one taken off below it; the gamma
+        methods refuse every survivor (they need failure times).
+        """
+        if method != "pass-fail":
+            return self.refuse(self.survivors, lambda value: (
+                f"marks a survivor ({value:g}+); {method} needs every unit's failure time, "
+                f"use pass-fail for a log with survivors"))
+        return self.refuse(self.survivors & (self.values < threshold), lambda value: (
+            f"marks a survivor taken off at {value:g}, below the threshold {threshold:g}; it cannot count as "
+            f"outlasting it: test it to the threshold or clear the cell"))
+
+
+def read_log_cells(values, name="observations", *, single_column=False) -> LogCells:
+    """Read a test-log range: lifetimes, survivor marks, blanks, and the first unreadable cell.
+
+    Unlike ``clean_lifetimes`` this does not raise on a bad cell: it reports
+    it (``problem``, ``problem_row``) with the units above it, so that a
+    column of decisions can stay correct above the bad cell. Trailing blank
+    cells cost next to nothing (whole-column references).
+
+    Raises
+    ------
+    InputError
+        Only if ``single_column`` is asked for and the range has several columns.
+    """
+    rows = _rows_of(values)
+    lengths = set(map(len, rows))
+    is_column = lengths <= {1}
+    flat = list(map(itemgetter(0), rows)) if is_column else list(chain.from_iterable(rows))
+    if not flat:
+        rows, is_column = [], True
+    if single_column and not is_column:
+        raise InputError(f"{name} must be a single column, one unit per row")
+    filled = len(flat) - _trailing_blanks(flat)
+    cells = flat[:filled]
+    parsed = _fast_log_numbers(cells)
+    if parsed is None:
+        parsed = _read_log_cells_one_by_one(cells)
+    numbers, survivors, bad_at, reason = parsed
+    stop = filled if bad_at is None else bad_at
+    units = np.flatnonzero(~np.isnan(numbers[:stop]))
+    if is_column:
+        unit_rows, unit_columns = units, np.zeros(units.size, dtype=np.int64)
+        filled_rows = filled
+        problem_row = bad_at
+    else:
+        starts = np.cumsum([0] + [len(row) for row in rows])
+        unit_rows = np.searchsorted(starts, units, side="right") - 1
+        unit_columns = units - starts[unit_rows]
+        filled_rows = int(np.searchsorted(starts, filled - 1, side="right")) if filled else 0
+        problem_row = None if bad_at is None else int(np.searchsorted(starts, bad_at, side="right") - 1)
+    problem = None if bad_at is None else f"{name}: {_position(rows, bad_at, is_column)} {reason}"
+    return LogCells(numbers[units], survivors[units], unit_rows.astype(np.int64), unit_columns.astype(np.int64),
+                    len(rows), filled_rows, problem_row, problem, name, is_column)
+
+
+def _is_blank(value) -> bool:
+    return value is None or (isinstance(value, str) and not value.strip())
+
+
+def _trailing_blanks(flat) -> int:
+    """How many cells at the end are blank, counted in C-level passes (``list.count``).
+
+    Stretches ending at the last cell not yet known to be blank double while
+    they are all blank, then halve down to single cells.
+    """
+    end, step, growing = len(flat), 64, True
+    while end and step:
+        start = max(0, end - step)
+        part = flat[start:end]
+        if part.count(None) + part.count("") == end - start:
+            end = start
+            step = step * 2 if growing else step
+        else:
+            growing, step = False, step // 2
+    while end and _is_blank(flat[end - 1]):  # text of spaces only
+        end -= 1
+    return len(flat) - end
+
+
+def _fast_log_numbers(cells):
+    """All plain numbers and blanks (the common case): NaN marks a blank; None if anything else is there."""
+    kinds = set(map(type, cells))
+    if not kinds <= {float, int, type(None)}:
+        return None
+    if int in kinds and not SPREADSHEET_ERROR_CODES.keys().isdisjoint(cells):
+        return None
+    try:
+        numbers = np.array(cells, dtype=float)
+    except OverflowError:
+        return None
+    if np.count_nonzero(np.isnan(numbers)) != cells.count(None):
+        return None  # a NaN that is not a blank: let the slow reader name it
+    good = np.isnan(numbers) | (np.isfinite(numbers) & (numbers > 0))
+    bad_at = None if good.all() else int(np.argmin(good))
+    reason = None if bad_at is None else describe(cells[bad_at])
+    return numbers, np.zeros(numbers.size, dtype=bool), bad_at, reason
+
+
+def _read_log_cells_one_by_one(cells):
+    numbers = np.full(len(cells), np.nan)
+    survivors = np.zeros(len(cells), dtype=bool)
+    for i, value in enumerate(cells):
+        if _is_blank(value):
+            continue
+        number, survivor, reason = _log_cell(value)
+        if reason is not None:
+            return numbers, survivors, i, reason
+        numbers[i], survivors[i] = number, survivor
+    return numbers, survivors, None, None
+
+
+def _log_cell(value):
+    """(lifetime, is survivor, None) for a usable cell, or (None, None, reason)."""
+    text = value.strip() if isinstance(value, str) else None
+    if text is not None and text.endswith(SURVIVOR_MARK) and not is_spreadsheet_error(value):
+        number = _as_number(text[: -len(SURVIVOR_MARK)])
+        if number is None or not math.isfinite(number):
+            return None, None, f"{describe(value)}; a survivor is written as its time off test followed by +, e.g. 1500+"
+        if not number > 0:
+            return None, None, f"{describe(value)}; a survivor's time off test must be > 0"
+        return number, True, None
+    number = _as_number(value)
+    if number is None or not (math.isfinite(number) and number > 0):
+        return None, None, describe(value)
+    return number, False, None
