@@ -21,6 +21,12 @@ from .sheet_estimate import (  # noqa: F401
     UNITS_REQUIRED,
     UNITS_REQUIRED_FROM_P,
 )
+from .sheet_decisions import (  # noqa: F401
+    STOP_DECISION,
+    STOP_DECISION_COLUMN,
+    TWO_STAGE_UNITS,
+    UNITS_NEEDED_NOW,
+)
 from .sheet_notes import TAIL_METHOD_NOTES  # noqa: F401
 from .sheet_planning import (  # noqa: F401
     PLAN_COVERAGE,

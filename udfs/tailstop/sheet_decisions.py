@@ -1,0 +1,171 @@
+"""Formulas: stop/continue decisions for a live test log, the units needed now, the two-stage plan.
+
+The log is one column, one unit per row, in test order.
+
+Survivors (pass-fail). A unit taken off test at or beyond the threshold
+without failing is written as its time off test followed by ``+``
+(``1500+``, the usual censoring notation of reliability logs), in the
+lifetime cell itself: the mark stays with its unit when rows are sorted,
+copied or filled down, and needs no second range. It counts as beyond the
+threshold. A survivor taken off below the threshold is refused (it says
+nothing about outlasting it), and so is any survivor under known-shape or
+fitted-shape, which need every unit's failure time.
+
+Blank rows. A blank row (or text of spaces, or "" from a formula) is not a
+unit: the decision formulas show an empty cell there, and count units, not
+rows, towards the pilot. The column formula ends at the last filled row, so
+a whole-column reference costs no more than the log itself.
+
+A cell that cannot be read (text, 0, an error) makes every row from it
+downwards show the ``#TAILSTOP!`` text naming it, in both decision formulas,
+and leaves the decisions above it as they were. Rows are counted from the
+top of the range.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import cells
+from .formula import formula
+from .methods import METHOD_NAMES
+from .rule import MIN_PILOT
+from .sequential import decision_column, two_stage_plan, units_needed_now
+from .sheet_estimate import HELP
+
+# Larger whole numbers are refused as typing errors (a sheet column has 1,048,576 rows).
+_LARGEST_COUNT = 10**9
+
+HELP_DECISIONS = {
+    "observations": "Column of lifetimes in test order, one unit per row (fill down as $B$2:B2); blank rows are "
+                    "skipped; pass-fail: a unit taken off at or past the threshold without failing is written 1500+",
+    "pilot_observations": "The pilot's lifetimes, one unit per cell; blank cells are skipped; pass-fail: a unit taken "
+                          "off at or past the threshold without failing is written 1500+",
+    "units_so_far": "Lifetimes of all units so far, one per cell; blank cells are skipped; pass-fail: a unit taken "
+                    "off at or past the threshold without failing is written 1500+",
+    "pilot": "Pilot sample: units tested before the rule is first consulted (a whole number >= 2)",
+    "check_every": "Optional: consult the rule only every k-th unit after the pilot, for a rig that tests k at a "
+                   "time (default 1)",
+}
+
+
+@dataclass(frozen=True)
+class _Request:
+    threshold: float
+    accuracy: float
+    confidence: float
+    method: str
+    shape: float | None
+
+
+def _request(threshold, accuracy, confidence, method, shape) -> _Request:
+    name = cells.method_name(method, METHOD_NAMES)
+    shape_value = None
+    if name == "known-shape":
+        if cells.is_missing(shape):
+            raise cells.InputError("known-shape needs the gamma shape (the shape argument)")
+        shape_value = cells.positive(shape, "shape")
+    return _Request(cells.positive(threshold, "threshold"), cells.accuracy(accuracy), cells.confidence(confidence),
+                    name, shape_value)
+
+
+def _pilot(value) -> int:
+    m = cells.number(value, "pilot")
+    if m != int(m):
+        raise cells.InputError(f"pilot must be a whole number of units (got {m:g})")
+    if m < MIN_PILOT:
+        raise cells.InputError(f"pilot must be at least {MIN_PILOT} units; fewer cannot estimate the variance "
+                               f"(got {m:g})")
+    if m > _LARGEST_COUNT:
+        raise cells.InputError(f"pilot must be at most {_LARGEST_COUNT:,} (got {m:g})")
+    return int(m)
+
+
+def _check_every(value) -> int:
+    if cells.is_missing(value):
+        return 1
+    return cells.whole_number(value, "check_every", minimum=1, maximum=_LARGEST_COUNT)
+
+
+def _read_log(observations, request, name="observations", *, single_column) -> cells.LogCells:
+    """The log's units, cut at the first cell the method cannot use."""
+    log = cells.read_log_cells(observations, name, single_column=single_column)
+    return log.for_method(request.method, request.threshold)
+
+
+def _survivors(log):
+    return log.survivors if log.survivors.any() else None
+
+
+def _decisions(log, request, pilot, check_every):
+    return decision_column(log.values, request.threshold, request.accuracy, request.confidence, pilot,
+                           request.method, request.shape, survivors=_survivors(log), check_every=check_every)
+
+
+_DECISION_HELP = dict(
+    observations=HELP_DECISIONS["observations"], threshold=HELP["threshold"], accuracy=HELP["accuracy"],
+    confidence=HELP["confidence"], pilot=HELP_DECISIONS["pilot"], method=HELP["method"],
+    shape=HELP["known_shape"], check_every=HELP_DECISIONS["check_every"],
+)
+
+
+@formula(ranges=("observations",), returns="text", **_DECISION_HELP)
+def STOP_DECISION(observations, threshold, accuracy, confidence, pilot, method=None, shape=None, check_every=None):
+    """Decision after the last row of the range: PILOT, CONTINUE, STOP or PAST STOP (empty on a blank row)."""
+    request = _request(threshold, accuracy, confidence, method, shape)
+    m, k = _pilot(pilot), _check_every(check_every)
+    log = _read_log(observations, request, single_column=True)
+    if log.problem is not None:
+        raise cells.InputError(log.problem)
+    if log.n_rows == 0 or log.filled_rows < log.n_rows:
+        return ""
+    return _decisions(log, request, m, k).decision
+
+
+@formula(ranges=("observations",), returns="column", **_DECISION_HELP)
+def STOP_DECISION_COLUMN(observations, threshold, accuracy, confidence, pilot, method=None, shape=None,
+                         check_every=None):
+    """Decisions for every row of the log at once, a column to its last filled row: the same as STOP_DECISION filled down."""
+    request = _request(threshold, accuracy, confidence, method, shape)
+    m, k = _pilot(pilot), _check_every(check_every)
+    log = _read_log(observations, request, single_column=True)
+    column = np.full(max(log.filled_rows, 1), "", dtype=object)
+    column[log.rows] = _decisions(log, request, m, k).labels
+    if log.problem is not None:
+        column[log.problem_row:] = f"{cells.ERROR_PREFIX} {log.problem}"
+    return [[label] for label in column.tolist()]
+
+
+@formula(
+    ranges=("observations",), observations=HELP_DECISIONS["units_so_far"],
+    threshold=HELP["threshold"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
+    shape=HELP["known_shape"],
+)
+def UNITS_NEEDED_NOW(observations, threshold, accuracy, confidence, method=None, shape=None):
+    """Units the accuracy needs by the current estimate, (z/log d)^2 times the variance from all units so far, rounded up."""
+    request = _request(threshold, accuracy, confidence, method, shape)
+    log = _read_log(observations, request, single_column=False)
+    if log.problem is not None:
+        raise cells.InputError(log.problem)
+    if log.values.size < MIN_PILOT:
+        raise cells.InputError(f"needs at least {MIN_PILOT} units (found {log.values.size})")
+    return units_needed_now(log.values, request.threshold, request.accuracy, request.confidence, request.method,
+                            request.shape, survivors=_survivors(log)).whole
+
+
+@formula(
+    ranges=("pilot_observations",), pilot_observations=HELP_DECISIONS["pilot_observations"],
+    threshold=HELP["threshold"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
+    shape=HELP["known_shape"],
+)
+def TWO_STAGE_UNITS(pilot_observations, threshold, accuracy, confidence, method=None, shape=None):
+    """Total units to test in a two-stage plan (pilot included), from the pilot's results."""
+    request = _request(threshold, accuracy, confidence, method, shape)
+    log = _read_log(pilot_observations, request, "pilot_observations", single_column=False)
+    if log.problem is not None:
+        raise cells.InputError(log.problem)
+    if log.values.size < MIN_PILOT:
+        raise cells.InputError(f"the pilot needs at least {MIN_PILOT} units (found {log.values.size})")
+    return two_stage_plan(log.values, request.threshold, request.accuracy, request.confidence, request.method,
+                          request.shape, survivors=_survivors(log)).total_units
