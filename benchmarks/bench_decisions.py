@@ -1,0 +1,115 @@
+"""Speed of the stop/continue decision column, as ratios against baselines measured in the same run.
+
+    python benchmarks/bench_decisions.py
+
+1. A decision column of 1,048,576 rows (a full sheet column) for each method,
+   against a bare numpy pass over the same data (cumulative sum and compare),
+   in three cases: the rule stops early (the usual log), stops late (at about
+   90 % of the rows: every check point before it is looked at), or never
+   stops (the accuracy needs twice the rows). Targets: known-shape and
+   pass-fail within 10x of the baseline, fitted-shape under 3 s.
+2. The same through the spreadsheet formula STOP_DECISION_COLUMN (cleaning
+   the cells and writing the column), for a full column of data and for a
+   whole-column reference holding a 500-row log.
+3. fitted-shape against the naive way, refitting every prefix with
+   scipy.stats.gamma.fit, at 2,000 rows.
+
+The data are invented: gamma lifetimes (shape 2.4, scale 520 kcycles),
+threshold 1,500 kcycles, 95 % confidence, pilot 10.
+"""
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+from scipy import stats
+
+from tailstop.methods import model_sigma2
+from tailstop.rule import boundary_factor
+from tailstop.sequential import decision_column
+from tailstop.sheet_decisions import STOP_DECISION_COLUMN
+from tailstop.variance import sigma2_fitted_shape
+
+ROWS = 1_048_576
+SHAPE, SCALE, THRESHOLD, CONFIDENCE, PILOT = 2.4, 520.0, 1500.0, 0.95, 10
+METHODS = (("pass-fail", None), ("known-shape", SHAPE), ("fitted-shape", None))
+
+
+def best_time(function, repeat):
+    best = math.inf
+    for _ in range(repeat):
+        start = time.perf_counter()
+        result = function()
+        best = min(best, time.perf_counter() - start)
+    return best, result
+
+
+def baseline(x, factor):
+    """A bare numpy pass: running mean by cumulative sum, compared with n / factor."""
+    n = np.arange(1, x.size + 1)
+    return int(np.argmax(n >= factor * (np.cumsum(x) / n)))
+
+
+def accuracy_for(method, units):
+    """The accuracy factor whose fixed-size plan, at the true parameters, is ``units`` units."""
+    sigma2 = float(model_sigma2(method, THRESHOLD, SHAPE, SCALE))
+    return math.exp(stats.norm.isf((1 - CONFIDENCE) / 2) * math.sqrt(sigma2 / units))
+
+
+def naive_stop(x, accuracy):
+    """Refit every prefix with scipy.stats.gamma.fit (floc=0) and apply the rule: the slow, obvious way."""
+    factor = boundary_factor(accuracy, CONFIDENCE)
+    for n in range(PILOT, x.size + 1):
+        a, _, s = stats.gamma.fit(x[:n], floc=0)
+        if n >= factor * float(sigma2_fitted_shape(a, THRESHOLD / s)):
+            return n
+    return None
+
+
+def main():
+    rng = np.random.default_rng(20261201)
+    x = rng.gamma(SHAPE, SCALE, size=ROWS)
+    reference, _ = best_time(lambda: baseline(x, 23.0), repeat=7)
+    print(f"decision column of {ROWS:,} rows; baseline (numpy cumulative sum and compare): {reference * 1e3:.1f} ms")
+    print(f"{'method':13s} {'case':12s} {'stops at':>10s} {'time':>9s} {'ratio = ours / baseline':>25s}  target")
+    for method, shape in METHODS:
+        cases = (("stops early", 1.5), ("stops late", accuracy_for(method, 0.9 * ROWS)),
+                 ("never stops", accuracy_for(method, 2.0 * ROWS)))
+        for case, accuracy in cases:
+            repeat = 2 if method == "fitted-shape" else 5
+            seconds, column = best_time(
+                lambda: decision_column(x, THRESHOLD, accuracy, CONFIDENCE, PILOT, method, shape), repeat)
+            ratio = seconds / reference
+            if method == "fitted-shape":
+                target = f"< 3 s: {'met' if seconds < 3.0 else 'NOT MET'}"
+            else:
+                target = f"<= 10x: {'met' if ratio <= 10.0 else 'NOT MET'}"
+            stop = f"{column.stop_units:,}" if column.stopped else "-"
+            print(f"{method:13s} {case:12s} {stop:>10s} {seconds * 1e3:7.1f} ms {ratio:25.1f}  {target}")
+
+    print()
+    print("through the formula STOP_DECISION_COLUMN (cells in, a column of text out), stops early")
+    full = [[float(v)] for v in x]
+    log_in_column = [[float(v)] for v in x[:500]] + [[None]] * (ROWS - 500)
+    for label, cells in (("1,048,576 filled rows", full), ("500-row log in a whole column", log_in_column)):
+        for method, shape in METHODS:
+            seconds, _ = best_time(
+                lambda: STOP_DECISION_COLUMN(cells, THRESHOLD, 1.5, CONFIDENCE, PILOT, method, shape), repeat=2)
+            print(f"  {label:30s} {method:13s} {seconds * 1e3:8.1f} ms   ratio = {seconds / reference:6.1f}")
+
+    print()
+    small = x[:2000]
+    accuracy = accuracy_for("fitted-shape", 1900)
+    naive_seconds, naive = best_time(lambda: naive_stop(small, accuracy), repeat=1)
+    ours_seconds, ours = best_time(
+        lambda: decision_column(small, THRESHOLD, accuracy, CONFIDENCE, PILOT, "fitted-shape"), repeat=20)
+    print(f"fitted-shape at 2,000 rows, stopping near the end (naive N = {naive}, ours N = {ours.stop_units}, "
+          f"{'same' if naive == ours.stop_units else 'DIFFERENT'})")
+    print(f"  naive (scipy.stats.gamma.fit on every prefix): {naive_seconds * 1e3:9.1f} ms")
+    print(f"  ours (running sums, all prefixes at once):     {ours_seconds * 1e3:9.1f} ms"
+          f"   ratio = ours / naive = {ours_seconds / naive_seconds:.5f} ({naive_seconds / ours_seconds:,.0f}x faster)")
+
+
+if __name__ == "__main__":
+    main()
