@@ -19,7 +19,8 @@ a whole-column reference costs no more than the log itself.
 A cell that cannot be read (text, 0, an error) makes every row from it
 downwards show the ``#TAILSTOP!`` text naming it, in both decision formulas,
 and leaves the decisions above it as they were. Rows are counted from the
-top of the range.
+top of the range. A bad argument (pilot, accuracy, …) makes the column
+formula return its ``#TAILSTOP!`` text once, in a single cell.
 """
 from __future__ import annotations
 
