@@ -13,6 +13,7 @@ from scipy import special, stats
 import tailstop.sheet
 from tailstop.workbooks.cached_values import CellError, save_with_cached_values, set_formula
 from tailstop.workbooks.recalc import recalc
+from tailstop.workbooks.safe_io import WorkbookRefused
 
 THRESHOLD, SHAPE, SCALE, ACCURACY = 250.0, 2.0, 100.0, 2.0
 
@@ -206,3 +207,14 @@ def test_declared_ranges_stay_2d_and_error_cells_arrive_as_text(tmp_path, monkey
     book.save(tmp_path / "cells.xlsx")
     recalc(tmp_path / "cells.xlsx", tmp_path / "cells-values.xlsx")
     assert sorted(seen, key=repr) == sorted([([[4.5]], 4.5), ([["#DIV/0!"]], "#DIV/0!")], key=repr)
+
+
+def test_sparse_sheet_over_the_engine_area_is_refused(tmp_path):
+    # the engine visits every position of the used rectangle; a stray far cell must not hang the tool
+    book = openpyxl.Workbook()
+    book.active["A1"] = "=TAIL_PROB(1,1,1)"
+    book.active["XFD1000"] = 5  # 16,384 columns × 1,000 rows
+    book.save(tmp_path / "sparse.xlsx")
+    with pytest.raises(WorkbookRefused, match="16,384,000 cells"):
+        recalc(tmp_path / "sparse.xlsx", tmp_path / "sparse-values.xlsx")
+    assert not (tmp_path / "sparse-values.xlsx").exists()

@@ -34,6 +34,8 @@ from .safe_io import open_workbook_safely
 __all__ = ["RecalcResult", "recalc", "evaluate_workbook", "register_formulas"]
 
 UDF_PREFIXES = ("", "_XLUDF.")
+# the engine compiles every position of a sheet's used rectangle, empty or not (about 30 µs each)
+MAX_ENGINE_AREA = 2_000_000
 _EXTERNAL_LINK = "application/vnd.openxmlformats-officedocument.spreadsheetml.externalLink+xml"
 _ENGINE_KEY = re.compile(r"^'?\[[^\]]*\](?P<sheet>.*?)'?!(?P<cell>[A-Z]+[0-9]+)$")
 
@@ -61,7 +63,8 @@ class RecalcResult:
     errors: list
 
 
-def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=False, limits=Limits()):
+def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=False, limits=Limits(),
+           max_area=MAX_ENGINE_AREA):
     """Evaluate every formula of a workbook and write a copy that stores the results.
 
     Parameters
@@ -78,6 +81,9 @@ def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=Fals
         Go on even if openpyxl would drop content of the book on save.
     limits : Limits
         Bounds for opening the book.
+    max_area : int
+        Largest used rectangle (rows × columns) of a sheet; the engine visits
+        every position of it.
 
     Returns
     -------
@@ -86,11 +92,13 @@ def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=Fals
     Raises
     ------
     WorkbookRefused
-        The book is unsafe, would lose content, or links to other workbooks
-        (their formulas would read files the checks never saw).
+        The book is unsafe, would lose content, links to other workbooks
+        (their formulas would read files the checks never saw), or has a
+        sheet larger than ``max_area``.
     """
     book = open_workbook_safely(book_path, allow_lossy=allow_lossy, limits=limits)
     _refuse_external_links(Path(book_path), book.tailstop_report)
+    _refuse_large_sheets(Path(book_path), book, max_area)
     computed = evaluate_workbook(book_path)
     cached = _cached_values(book, computed)
     saved = save_with_cached_values(book, out_path, cached, in_place=in_place, backup=backup)
@@ -103,6 +111,16 @@ def _refuse_external_links(path, report):
     if links:
         raise WorkbookRefused(f"{path.name}: links to other workbooks ({', '.join(links)}); recalculation "
                               "does not follow them. Paste the linked values in, then recalculate")
+
+
+def _refuse_large_sheets(path, book, max_area):
+    for sheet in book.worksheets:
+        area = sheet.max_row * sheet.max_column
+        if area > max_area:
+            raise WorkbookRefused(
+                f"{path.name}: sheet '{sheet.title}' spans {sheet.max_row:,} rows × {sheet.max_column:,} columns "
+                f"({area:,} cells); recalculation visits every one and is limited to {max_area:,}. Delete "
+                "stray cells far from the data")
 
 
 def _is_error(value):
@@ -158,17 +176,22 @@ def _cached_values(book, computed):
     """(sheet title, coordinate) -> value for every formula cell and array-formula block."""
     cached = {}
     for sheet in book.worksheets:
-        for cell in list(_formula_cells(sheet)):
+        for cell in _formula_cells(sheet):
             for member in _block(cell):
                 remember(member, computed.get((sheet.title.upper(), member.coordinate)), cached)
     return cached
 
 
 def _formula_cells(sheet):
-    for row in sheet.iter_rows():
-        for cell in row:
-            if isinstance(cell.value, ArrayFormula) or cell.data_type == "f":
-                yield cell
+    """The sheet's formula cells, in no particular order.
+
+    Reads openpyxl's store of existing cells: its public iterators create an
+    empty cell for every position of the used rectangle, which for a sparse
+    sheet can be many millions.
+    """
+    for cell in list(sheet._cells.values()):
+        if isinstance(cell.value, ArrayFormula) or cell.data_type == "f":
+            yield cell
 
 
 def _block(cell):
