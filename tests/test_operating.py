@@ -236,15 +236,36 @@ def test_screen_gives_exactly_the_runs_of_rule_stops_everywhere(shape, check_eve
     assert np.array_equal(fast.covered, plain.covered)
 
 
+@pytest.mark.parametrize("shape, check_every, pilot, n_target", [(2.0, 1, 10, 120), (0.5, 1, 3, 100), (8.0, 3, 20, 100),
+                                                              (1.0, 1, 2, 60)])
+def test_fitted_shape_screen_gives_exactly_the_runs_of_rule_stops_everywhere(shape, check_every, pilot, n_target):
+    # the two-dimensional screen against the straightforward computation, on the same random numbers
+    sigma2 = float(model_sigma2("fitted-shape", 1000.0, shape, 600.0))
+    accuracy = math.exp(Z95 * math.sqrt(sigma2 / n_target))
+    common = dict(replications=600, seed=12, check_every=check_every)
+    fast = op.simulate(1000.0, shape, 600.0, accuracy, 0.95, pilot, "fitted-shape", screen=True, **common)
+    plain = op.simulate(1000.0, shape, 600.0, accuracy, 0.95, pilot, "fitted-shape", screen=False, **common)
+    assert np.array_equal(fast.units, plain.units)
+    assert np.array_equal(fast.covered, plain.covered)
+
+
+def test_fitted_shape_screen_checks_its_table_against_the_rule(monkeypatch):
+    plan = op._Plan(1000.0, 2.0, 600.0, "fitted-shape", 1.3, 0.95, 5, 1000, 1, 0.5)
+    assert op._FittedShapeScreen(plan).valid
+    real = rule.rule_sigma2
+    monkeypatch.setattr(rule, "rule_sigma2", lambda s, *a, **k: real(s, *a, **k) * 1.01)
+    assert not op._FittedShapeScreen(plan).valid
+
+
 def test_screen_switches_itself_off_if_the_rule_changes(monkeypatch):
     # if σ̂² ever depends on more than t̂ = c/ŝ, the table is not a bound: every prefix must be checked
     threshold, shape, scale, accuracy = known_shape_plan(100)
     real = rule.rule_sigma2
     monkeypatch.setattr(rule, "rule_sigma2", lambda s, *a, **k: real(s, *a, **k) * (1 + 10 / np.asarray(s.n)))
     plan = op._Plan(threshold, shape, scale, "known-shape", accuracy, 0.95, 5, 1000, 1, 0.5)
-    assert not op._SigmaScreen(plan).valid
+    assert not op._KnownShapeScreen(plan).valid
     monkeypatch.setattr(rule, "rule_sigma2", real)
-    assert op._SigmaScreen(plan).valid
+    assert op._KnownShapeScreen(plan).valid
 
 
 def test_simulation_is_reproducible_for_a_seed():

@@ -15,8 +15,9 @@ it get, and how often does its final interval cover the true probability?
 
 The stop decision is always ``rule.stops`` itself; the Monte Carlo only
 skips calling it on prefixes where a conservative lower bound on σ̂² shows it
-cannot say STOP (``_SigmaScreen``), which a test checks against calling it
-everywhere.
+cannot say STOP (``_KnownShapeScreen``, ``_FittedShapeScreen``; each checks
+its table against ``rule.rule_sigma2`` and switches itself off on a
+mismatch), and tests check it against calling ``rule.stops`` everywhere.
 
 Calibration (``calibrate``) finds the smallest critical value z' >= z for the
 stopping boundary (n >= (z'/log d)² σ̂²_n) whose coverage at the planning
@@ -36,8 +37,10 @@ from scipy import stats
 
 from . import accuracy as _accuracy
 from . import rule
+from .fit import log_minus_digamma, shape_from_log_ratio
 from .methods import SufficientStatistics, estimate_from_statistics, get_method, model_sigma2
 from .tail import tail_probability
+from .variance import sigma2_fitted_shape
 
 __all__ = [
     "DEFAULT_SEED",
@@ -65,6 +68,8 @@ _EXACT_TOLERANCE = 1e-12
 _CHUNK_REPLICATIONS = 8192
 _LONGEST_BLOCK = 64
 _FIRST_BLOCK = 8
+# Rounds of one question per run before the screened candidates left are asked about at once.
+_SCREEN_ROUNDS = 3
 
 
 # --------------------------------------------------------------------------- results
@@ -478,7 +483,7 @@ class _Plan:
         return (interval.low <= self.probability) & (self.probability <= interval.high)
 
 
-class _SigmaScreen:
+class _KnownShapeScreen:
     """A conservative lower bound on σ̂² as a function of t̂ = c/ŝ (known-shape).
 
     The known-shape σ̂² depends on the data only through t̂ = threshold·shape·n/Σx.
@@ -532,8 +537,8 @@ class _SigmaScreen:
                 return False
         return True
 
-    def candidates(self, n, sum_x):
-        """Mask of the prefixes where STOP is possible; ``n`` 1-D (one per column), ``sum_x`` rows × columns.
+    def candidates(self, n, statistics):
+        """Mask of the prefixes where STOP is possible; ``n`` 1-D (one per column), statistics rows × columns.
 
         t̂ = c a n / Σx, so each t-interval is turned into an interval of Σx per
         column and the rows are compared with it.
@@ -545,10 +550,89 @@ class _SigmaScreen:
         scale = self.plan.threshold * self.plan.shape * n
         t_low = self.t[np.minimum(first_cell, self.points - 1)] * (1.0 - 1e-9)
         t_high = self.t[np.minimum(last_cell + 1, self.points - 1)] * (1.0 + 1e-9)
+        sum_x = statistics.sum_x
         sum_high = np.where(possible, scale / t_low, -np.inf)   # t̂ >= t_low
         sum_low = np.where(possible, scale / t_high, np.inf)    # t̂ <= t_high
         outside = (sum_x > scale / (self.t[0] * (1.0 - 1e-9))) | (sum_x < scale / (self.t[-1] * (1.0 + 1e-9)))
         return outside | ((sum_x >= sum_low) & (sum_x <= sum_high))
+
+
+class _FittedShapeScreen:
+    """A conservative lower bound on σ̂² as a function of (r, u) (fitted-shape).
+
+    The fitted-shape σ̂² depends on the data only through the log-ratio
+    r = log(mean x) - mean(log x) and u = c/mean x (then â solves
+    log a - ψ(a) = r and t̂ = â u). log σ̂² is tabulated on a grid of
+    (log r, log u) around the planning values with the helpers the estimator
+    uses (``fit.shape_from_log_ratio``, ``variance.sigma2_fitted_shape``; checked
+    against ``rule.rule_sigma2`` at sample nodes, or the screen is off). A
+    prefix is a candidate unless log(n / B) is below the bilinear interpolation
+    minus a margin of the local second differences (8 times the interpolation
+    error bound (h²/8)|f''|) plus 1e-6. Outside the table, and in any cell
+    with an undefined corner, every prefix is a candidate.
+    """
+
+    points = 161
+    half_width = 3.0  # in log r and log u around the planning values
+
+    def __init__(self, plan: _Plan):
+        self.plan = plan
+        steps = np.linspace(-self.half_width, self.half_width, self.points)
+        self.log_r = float(np.log(log_minus_digamma(plan.shape))) + steps
+        self.log_u = math.log(plan.threshold / (plan.shape * plan.scale)) + steps
+        self.step = steps[1] - steps[0]
+        shape = shape_from_log_ratio(np.exp(self.log_r))[:, None]
+        t = shape * np.exp(self.log_u)[None, :]
+        with np.errstate(all="ignore"):
+            sigma2 = sigma2_fitted_shape(np.broadcast_to(shape, t.shape), t)
+        self.valid = self._agrees_with_the_rule(sigma2)
+        with np.errstate(all="ignore"):
+            log_sigma2 = np.log(sigma2)
+        defined = np.isfinite(log_sigma2)
+        self.table = np.where(defined, log_sigma2, 0.0)
+        curvature = self._second_differences(self.table)
+        corners = lambda a: np.maximum.reduce([a[:-1, :-1], a[1:, :-1], a[:-1, 1:], a[1:, 1:]])  # noqa: E731
+        self.margin = corners(curvature) + 1e-6
+        self.margin[corners(~defined)] = np.inf
+        self.log_factor = math.log(rule.boundary_factor(plan.accuracy, plan.stop_confidence))
+
+    def _agrees_with_the_rule(self, sigma2):
+        rows = np.linspace(0, self.points - 1, 7).astype(int)
+        columns = np.linspace(0, self.points - 1, 7).astype(int)
+        i, j = (a.ravel() for a in np.meshgrid(rows, columns, indexing="ij"))
+        n = np.full(i.size, 10.0)
+        statistics = SufficientStatistics(n=n, sum_x=self.plan.threshold * n / np.exp(self.log_u[j]),
+                                          log_ratio=np.exp(self.log_r[i]), exceedances=np.zeros(i.size))
+        from_rule = rule.rule_sigma2(statistics, self.plan.threshold, self.plan.method)
+        return bool(np.allclose(from_rule, sigma2[i, j], rtol=1e-9, atol=0, equal_nan=True))
+
+    @staticmethod
+    def _second_differences(table):
+        """|Δ²| along each axis at every node (edges copy their neighbour), summed."""
+        padded = np.pad(table, 1, mode="edge")
+        along_r = np.abs(padded[2:, 1:-1] - 2 * padded[1:-1, 1:-1] + padded[:-2, 1:-1])
+        along_u = np.abs(padded[1:-1, 2:] - 2 * padded[1:-1, 1:-1] + padded[1:-1, :-2])
+        along_r[[0, -1], :] = along_r[[1, -2], :]
+        along_u[:, [0, -1]] = along_u[:, [1, -2]]
+        return along_r + along_u
+
+    def candidates(self, n, statistics):
+        """Mask of the prefixes where STOP is possible; ``n`` 1-D (one per column), statistics rows × columns."""
+        with np.errstate(all="ignore"):
+            row = (np.log(statistics.log_ratio) - self.log_r[0]) / self.step
+            column = (np.log(self.plan.threshold * n / statistics.sum_x) - self.log_u[0]) / self.step
+        inside = (row >= 0) & (row < self.points - 1) & (column >= 0) & (column < self.points - 1)
+        i = np.where(inside, row, 0).astype(np.intp)
+        j = np.where(inside, column, 0).astype(np.intp)
+        di, dj = np.where(inside, row - i, 0.0), np.where(inside, column - j, 0.0)
+        table = self.table
+        interpolated = ((table[i, j] * (1 - dj) + table[i, j + 1] * dj) * (1 - di)
+                        + (table[i + 1, j] * (1 - dj) + table[i + 1, j + 1] * dj) * di)
+        level = np.log(n) - self.log_factor + 1e-9
+        return ~inside | (level >= interpolated - self.margin[i, j])
+
+
+_SCREENS = {"known-shape": _KnownShapeScreen, "fitted-shape": _FittedShapeScreen}
 
 
 class _Runs:
@@ -588,13 +672,15 @@ class _Runs:
                                     exceedances=exceedances)
 
     def pilot_statistics(self):
-        n = np.full(self.sum_x.shape, float(self.plan.pilot))
+        """SufficientStatistics after the pilot, as a block of one column (rows × 1)."""
+        sum_x = self.sum_x[:, None]
+        n = np.full(sum_x.shape, float(self.plan.pilot))
         if self.plan.method == "known-shape":
-            zero = np.zeros(self.sum_x.shape)
-            return SufficientStatistics(n=n, sum_x=self.sum_x, log_ratio=zero, exceedances=zero)
+            zero = np.zeros(sum_x.shape)
+            return SufficientStatistics(n=n, sum_x=sum_x, log_ratio=zero, exceedances=zero)
         with np.errstate(divide="ignore", invalid="ignore"):
-            log_ratio = np.maximum(np.log(self.sum_x / (n * self.reference)) - self.sum_log / n, 0.0)
-        return SufficientStatistics(n=n, sum_x=self.sum_x, log_ratio=log_ratio, exceedances=self.exceedances)
+            log_ratio = np.maximum(np.log(sum_x / (n * self.reference)) - self.sum_log[:, None] / n, 0.0)
+        return SufficientStatistics(n=n, sum_x=sum_x, log_ratio=log_ratio, exceedances=self.exceedances[:, None])
 
     def keep(self, rows, column=None):
         """Keep only ``rows``; with ``column``, first move the totals to that unit of the last block."""
@@ -623,23 +709,23 @@ def _decide(plan, statistics, screen):
     if screen is None:
         return plan.stops(statistics)
     n = np.asarray(statistics.n)[0]
-    candidates = screen.candidates(n.astype(float), statistics.sum_x)
+    candidates = screen.candidates(n.astype(float), statistics)
     candidates &= rule.is_check_point(n, plan.pilot, plan.check_every)
-    # Only the first STOP of each row matters: ask about each row's first candidate, then about
-    # the later candidates of the rows where that one was not a STOP.
+    # Only the first STOP of each row matters: ask about each row's next candidate, a few
+    # rounds, then about all the candidates left in the rows still undecided.
     decision = np.zeros(candidates.shape, bool)
-    rows = np.flatnonzero(candidates.any(axis=1))
-    if rows.size == 0:
-        return decision
-    first = np.argmax(candidates[rows], axis=1)
-    asked = np.zeros(candidates.shape, bool)
-    asked[rows, first] = True
-    decision[asked] = plan.stops(_take(statistics, asked))
-    undecided = np.zeros(candidates.shape[0], bool)
-    undecided[rows[~decision[rows, first]]] = True
-    later = candidates & undecided[:, None] & ~asked
-    if later.any():
-        decision[later] = plan.stops(_take(statistics, later))
+    pending = candidates.copy()
+    for _ in range(_SCREEN_ROUNDS):
+        rows = np.flatnonzero(pending.any(axis=1))
+        if rows.size == 0:
+            return decision
+        asked = np.zeros(candidates.shape, bool)
+        asked[rows, np.argmax(pending[rows], axis=1)] = True
+        decision[asked] = plan.stops(_take(statistics, asked))
+        pending &= ~asked
+        pending[decision.any(axis=1)] = False
+    if pending.any():
+        decision[pending] = plan.stops(_take(statistics, pending))
     return decision
 
 
@@ -656,10 +742,11 @@ def _simulate_chunk(plan: _Plan, rng, count, screen, common_numbers=False):
     runs = _Runs(plan, rng, count)
     alive = np.arange(count)
     pilot_statistics = runs.pilot_statistics()
-    stopped = plan.stops(pilot_statistics)
+    at_pilot = _decide(plan, pilot_statistics, screen)
+    stopped = at_pilot[:, 0]
     if stopped.any():
         units[alive[stopped]] = plan.pilot
-        covered[alive[stopped]] = plan.covers(_take(pilot_statistics, stopped))
+        covered[alive[stopped]] = plan.covers(_take(pilot_statistics, at_pilot))
     alive = alive[~stopped]
     runs.keep(~stopped)
     done, block = plan.pilot, _FIRST_BLOCK
@@ -710,8 +797,9 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
     stop_z : float, optional
         Critical value for the stopping boundary instead of z(confidence).
     screen : bool
-        known-shape only: call ``rule.stops`` only where a conservative lower
-        bound on σ̂² allows STOP (same results, much faster; see ``_SigmaScreen``).
+        known-shape and fitted-shape: call ``rule.stops`` only where a conservative lower
+        bound on σ̂² allows STOP (same results, much faster; see ``_KnownShapeScreen``
+        and ``_FittedShapeScreen``).
     common_numbers : bool
         Let every run see the same lifetimes whatever the stopping boundary
         (slower; used by calibration, so coverage(z') is compared on the same data).
@@ -741,9 +829,9 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
         raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
     plan = _Plan(float(threshold), float(shape), float(scale), model.name, float(accuracy),
                  _stop_confidence(confidence, stop_z), int(pilot), n_max, int(check_every), p)
-    sigma_screen = _SigmaScreen(plan) if (screen and plan.method == "known-shape") else None
+    sigma_screen = _SCREENS[plan.method](plan) if (screen and plan.method in _SCREENS) else None
     if sigma_screen is not None and not sigma_screen.valid:
-        sigma_screen = None  # the rule's σ̂² is no longer a function of t̂ alone: check every prefix
+        sigma_screen = None  # the rule's σ̂² is no longer what the table assumes: check every prefix
     rng = np.random.default_rng(seed)
     units, covered = [], []
     for start in range(0, replications, _CHUNK_REPLICATIONS):
