@@ -62,8 +62,8 @@ def add_arguments(parser):
     parser.add_argument("--confidence", type=float, default=0.95, help="confidence level, e.g. 0.95 (default)")
     parser.add_argument("--pilot", type=int, default=10, help="pilot sample, units before the rule is consulted (default 10)")
     parser.add_argument("--replications", type=int, default=10_000, help="simulated runs for known-shape (default 10,000)")
-    parser.add_argument("--fitted-replications", type=int, default=1_000,
-                        help="simulated runs for fitted-shape, which is slower (default 1,000)")
+    parser.add_argument("--fitted-replications", type=int, default=10_000,
+                        help="simulated runs for fitted-shape (default 10,000)")
     parser.add_argument("--seed", type=int, default=operating.DEFAULT_SEED, help="seed of the simulation")
     parser.add_argument("--calibrate", action="store_true",
                         help="also find the smallest critical value that reaches the nominal coverage")

@@ -3,7 +3,7 @@
 Every call is bounded in time: the exact pass-fail figures are computed for
 plans up to ``EXACT_UNITS_LIMIT`` units, the simulated ones for at most
 ``REPLICATIONS_LIMIT`` replications and at most ``WORK_LIMIT[method]``
-replications × units. Beyond that the formula answers with a ``#TAILSTOP!``
+replications × units per run. Beyond that the formula answers with a ``#TAILSTOP!``
 text saying what to change (or to use ``tailstop plan`` at the command line).
 """
 from __future__ import annotations
@@ -19,9 +19,11 @@ from .sheet_estimate import HELP, planning_sigma2
 
 EXACT_UNITS_LIMIT = 10_000
 REPLICATIONS_LIMIT = 100_000
-DEFAULT_REPLICATIONS = {"known-shape": 10_000, "fitted-shape": 1_000}
-# replications × units per run a cell may simulate (about a second or two on one core)
-WORK_LIMIT = {"known-shape": 20_000_000, "fitted-shape": 100_000}
+DEFAULT_REPLICATIONS = {"known-shape": 10_000, "fitted-shape": 10_000}
+# replications × units per run a cell may simulate (about a second or two on one core); a run
+# also costs a fixed amount, counted as this many units (fitted-shape solves for the shape)
+WORK_LIMIT = {"known-shape": 20_000_000, "fitted-shape": 4_000_000}
+RUN_OVERHEAD = {"known-shape": 20, "fitted-shape": 400}
 SEED_LIMIT = 2**63 - 1
 
 PLAN_HELP = {
@@ -32,7 +34,7 @@ PLAN_HELP = {
     "confidence": HELP["confidence"],
     "pilot": "Pilot sample: units tested before the rule is first consulted (a whole number >= 2)",
     "method": HELP["method"],
-    "replications": "Optional: simulated test runs for known-shape / fitted-shape (default 10,000 / 1,000)",
+    "replications": "Optional: simulated test runs for known-shape and fitted-shape (default 10,000)",
     "seed": "Optional: seed of the simulation; the same seed gives the same figures",
 }
 
@@ -50,7 +52,7 @@ def _exact_limit(n_star, pilot):
 
 def _replications(value, method, n_star, pilot):
     units = max(n_star, pilot)
-    affordable = int(WORK_LIMIT[method] // units)
+    affordable = int(WORK_LIMIT[method] // (units + RUN_OVERHEAD[method]))
     if cells.is_missing(value):
         replications = min(DEFAULT_REPLICATIONS[method], affordable)
         if replications < 100:
@@ -61,7 +63,7 @@ def _replications(value, method, n_star, pilot):
     replications = cells.whole_number(value, "replications", minimum=1, maximum=REPLICATIONS_LIMIT)
     if replications > affordable:
         raise cells.InputError(
-            f"replications × units is capped at {WORK_LIMIT[method]:,} for {method} so that the cell stays quick; "
+            f"replications × units per run is capped at {WORK_LIMIT[method]:,} for {method} so that the cell stays quick; "
             f"this plan needs about {math.ceil(units):,} units per run: use at most {max(affordable, 1):,} replications")
     return replications
 
