@@ -229,8 +229,8 @@ class MethodComparison:
 
 
 def _format_figure(value, se):
-    if isinstance(value, (int, np.integer)):
-        text = f"{value:,}"
+    if isinstance(value, (int, np.integer)) or (math.isfinite(value) and float(value).is_integer()):
+        text = f"{int(value):,}"
     elif not math.isfinite(value):
         text = "beyond n_max"
     elif abs(value) >= 100:
@@ -600,11 +600,14 @@ class _FittedShapeScreen:
         rows = np.linspace(0, self.points - 1, 7).astype(int)
         columns = np.linspace(0, self.points - 1, 7).astype(int)
         i, j = (a.ravel() for a in np.meshgrid(rows, columns, indexing="ij"))
-        n = np.full(i.size, 10.0)
-        statistics = SufficientStatistics(n=n, sum_x=self.plan.threshold * n / np.exp(self.log_u[j]),
-                                          log_ratio=np.exp(self.log_r[i]), exceedances=np.zeros(i.size))
-        from_rule = rule.rule_sigma2(statistics, self.plan.threshold, self.plan.method)
-        return bool(np.allclose(from_rule, sigma2[i, j], rtol=1e-9, atol=0, equal_nan=True))
+        for units in (10.0, 1234.0):  # the same (r, u) at any n must give the same σ̂²
+            n = np.full(i.size, units)
+            statistics = SufficientStatistics(n=n, sum_x=self.plan.threshold * n / np.exp(self.log_u[j]),
+                                              log_ratio=np.exp(self.log_r[i]), exceedances=np.zeros(i.size))
+            from_rule = rule.rule_sigma2(statistics, self.plan.threshold, self.plan.method)
+            if not np.allclose(from_rule, sigma2[i, j], rtol=1e-9, atol=0, equal_nan=True):
+                return False
+        return True
 
     @staticmethod
     def _second_differences(table):

@@ -93,6 +93,9 @@ def run(args, out=None, progress_stream=None):
     if args.calibrate:
         print(file=out)
         print(_aligned(_calibration_table(plan, counts, args.seed, progress_stream)), file=out)
+        print("Calibration simulates on common random numbers (every run sees the same lifetimes at every z'), "
+              "so its coverage at z can differ from the table above within Monte Carlo error; "
+              "(a..b): the z' where coverage + 2 s.e. and coverage - 2 s.e. reach the nominal level.", file=out)
     if args.png:
         _plot(args.png, plan, comparison, counts, args.seed, progress_stream)
         print(f"\nPlot written to {args.png}", file=out)
