@@ -174,6 +174,10 @@ def test_bad_plans_are_refused():
         op.simulate(1000, 2, 600, 1.5, 0.95, 5, replications=0)
     with pytest.raises(ValueError, match="one side"):
         op.simulate(1e6, 2, 1, 1.5, 0.95, 5)
+    with pytest.raises(ValueError, match="check_every"):
+        op.pass_fail_exact(0.3, 1.5, 0.95, 5, check_every=0)
+    with pytest.raises(ValueError, match="check_every"):
+        op.simulate(1000, 2, 600, 1.5, 0.95, 5, check_every=2.5)
 
 
 # ---------------------------------------------------------------- calibration

@@ -255,7 +255,9 @@ def default_n_max(n_star, pilot):
     return int(max(pilot, 5 * math.ceil(n_star)) + 100)
 
 
-def _check_plan(accuracy, confidence, pilot):
+def _check_plan(accuracy, confidence, pilot, check_every=1):
+    if not (float(check_every) == int(check_every) and check_every >= 1):
+        raise ValueError(f"check_every must be a whole number >= 1 (got {check_every!r})")
     if not (np.isfinite(accuracy) and accuracy > 1):
         raise ValueError(f"accuracy must be > 1 (got {accuracy!r})")
     if not (np.isfinite(confidence) and 0 < confidence < 1):
@@ -305,7 +307,7 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
     The stop set is evaluated by ``rule.stops`` on blocks of the (n, S) grid,
     only over the S where the running probability is not exactly zero.
     """
-    _check_plan(accuracy, confidence, pilot)
+    _check_plan(accuracy, confidence, pilot, check_every)
     if not 0 < p < 1:
         raise ValueError(f"the probability must be strictly between 0 and 1 (got {p!r})")
     pilot = int(pilot)
@@ -816,7 +818,7 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
         proportions; the delta method for the sd of N; for the quantiles half
         the distance between the order statistics at R·level ± √(R·level(1-level)).
     """
-    _check_plan(accuracy, confidence, pilot)
+    _check_plan(accuracy, confidence, pilot, check_every)
     model = get_method(method)
     replications = int(replications)
     if replications < 1:
