@@ -9,7 +9,7 @@ from scipy import stats
 
 from conftest import range_values, write_log
 from tailstop import sequential
-from tailstop.fit import shape_from_log_ratio, trigamma_excess
+from tailstop.fit import shape_from_log_ratio
 from tailstop.methods import SufficientStatistics
 from tailstop.rule import stops
 from tailstop.sheet_decisions import STOP_DECISION, STOP_DECISION_COLUMN, TWO_STAGE_UNITS, UNITS_NEEDED_NOW
@@ -378,18 +378,12 @@ def test_fitted_shape_against_refitting_every_prefix_with_scipy():
     assert sequential.stopping_units(x, c, d, 0.95, pilot, "fitted-shape") == stop
 
 
-def test_prefix_shapes_solve_the_shape_equation():
+def test_shapes_of_all_prefixes_do_not_depend_on_each_other():
     s = np.logspace(-11, 3, 4001)
-    shapes = sequential.prefix_shapes(s)
-    assert shapes == pytest.approx(shape_from_log_ratio(s), rel=1e-12)
+    shapes = shape_from_log_ratio(s)
     # each element on its own: a prefix gets the same bits whatever it is solved with
-    assert all(sequential.prefix_shapes(s[i:i + 1])[0] == shapes[i] for i in range(0, s.size, 97))
-    assert np.isnan(sequential.prefix_shapes([0.0, -1.0, np.nan])).all()
-
-
-def test_slope_series_matches_the_trigamma_excess():
-    a = np.logspace(-3, 4, 2000)
-    assert sequential._trigamma_excess(a) == pytest.approx(trigamma_excess(a), rel=1e-9)
+    assert all(shape_from_log_ratio(s[i:i + 1])[0] == shapes[i] for i in range(0, s.size, 97))
+    assert np.isnan(shape_from_log_ratio([0.0, -1.0, np.nan])).all()
 
 
 def test_known_shape_floor_is_below_sigma2_on_its_interval():

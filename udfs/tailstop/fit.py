@@ -26,31 +26,44 @@ __all__ = [
 _SERIES_FROM = 20.0
 
 
-def log_minus_digamma(shape):
-    """log(a) - ψ(a), accurate also for large a (where it is about 1/(2a))."""
+def _by_branch(shape, direct, series):
+    """Evaluate ``direct`` below _SERIES_FROM and ``series`` above, each only where it applies."""
     a = np.asarray(shape, dtype=float)
-    big = a >= _SERIES_FROM
-    safe = np.where(big, 1.0, a)
-    direct = np.log(safe) - special.digamma(safe)
-    inv = 1.0 / np.where(big, a, 1.0)
+    flat = a.reshape(-1)
+    out = np.empty_like(flat)
+    big = flat >= _SERIES_FROM
+    out[~big] = direct(flat[~big])
+    out[big] = series(flat[big])
+    return out.reshape(a.shape)
+
+
+def _log_minus_digamma_series(a):
+    inv = 1.0 / a
     inv2 = inv * inv
-    series = inv * (0.5 + inv * (1 / 12 + inv2 * (-1 / 120 + inv2 * (1 / 252 + inv2 * (-1 / 240 + inv2 / 132)))))
-    return np.where(big, series, direct)
+    return inv * (0.5 + inv * (1 / 12 + inv2 * (-1 / 120 + inv2 * (1 / 252 + inv2 * (-1 / 240 + inv2 / 132)))))
+
+
+def _trigamma_excess_series(a):
+    inv = 1.0 / a
+    inv2 = inv * inv
+    return inv * (0.5 + inv * (1 / 6 + inv2 * (-1 / 30 + inv2 * (1 / 42 + inv2 * (-1 / 30 + inv2 * 5 / 66)))))
+
+
+def log_minus_digamma(shape):
+    """log(a) - ψ(a), accurate also for large a (where it is about 1/(2a)).
+
+    Above a = 20 the asymptotic series (Abramowitz & Stegun 6.3.18) replaces
+    the difference, which would lose digits to cancellation.
+    """
+    return _by_branch(shape, lambda a: np.log(a) - special.digamma(a), _log_minus_digamma_series)
 
 
 def trigamma_excess(shape):
-    """a ψ'(a) - 1 > 0, accurate also for large a (where it is about 1/(2a))."""
-    a = np.asarray(shape, dtype=float)
-    big = a >= _SERIES_FROM
-    safe = np.where(big, 1.0, a)
-    direct = safe * special.polygamma(1, safe) - 1.0
-    inv = 1.0 / np.where(big, a, 1.0)
-    inv2 = inv * inv
-    series = inv * (0.5 + inv * (1 / 6 + inv2 * (-1 / 30 + inv2 * (1 / 42 + inv2 * (-1 / 30 + inv2 * 5 / 66)))))
-    return np.where(big, series, direct)
+    """a ψ'(a) - 1 > 0, accurate also for large a (where it is about 1/(2a)); A&S 6.4.12 above 20."""
+    return _by_branch(shape, lambda a: a * special.polygamma(1, a) - 1.0, _trigamma_excess_series)
 
 
-def shape_from_log_ratio(log_ratio, iterations=60):
+def shape_from_log_ratio(log_ratio, *, tolerance=1e-13, iterations=60):
     """Solve log a - ψ(a) = log_ratio for a, elementwise.
 
     Parameters
@@ -66,24 +79,33 @@ def shape_from_log_ratio(log_ratio, iterations=60):
     Notes
     -----
     Starting value of Minka (2002), "Estimating a gamma distribution"
-    (also Choi & Wette 1969); then Newton's method on 1/a, which converges
-    in a handful of steps for every positive ``log_ratio``.
+    (also Choi & Wette 1969); then Newton's method in the variable 1/a,
+    which converges in a handful of steps for every positive ``log_ratio``.
+    Each element stops as soon as its own relative step is below
+    ``tolerance``, so an element's result does not depend on the others it
+    is solved with (a prefix of a log gets the same shape whether it is
+    solved alone or with a million others) and converged elements cost
+    nothing more.
     """
     s = np.asarray(log_ratio, dtype=float)
-    valid = np.isfinite(s) & (s > 0)
-    s_safe = np.where(valid, s, 1.0)
-    a = (3.0 - s_safe + np.sqrt((s_safe - 3.0) ** 2 + 24.0 * s_safe)) / (12.0 * s_safe)
+    flat = s.reshape(-1)
+    shapes = np.full(flat.size, np.nan)
+    valid = np.flatnonzero(np.isfinite(flat) & (flat > 0))
+    target = flat[valid]
+    a = (3.0 - target + np.sqrt((target - 3.0) ** 2 + 24.0 * target)) / (12.0 * target)
+    active = np.arange(a.size)
     for _ in range(iterations):
-        residual = log_minus_digamma(a) - s_safe
-        # d/da [log a - ψ(a)] = -(a ψ'(a) - 1) / a ; Newton in the variable 1/a
-        slope = -trigamma_excess(a) / a
-        inv_next = 1.0 / a + residual / (a * a * slope)
-        a_next = np.where(inv_next > 0, 1.0 / np.where(inv_next > 0, inv_next, 1.0), a / 2.0)
-        converged = np.all(np.abs(a_next - a) <= 1e-15 * a)
-        a = a_next
-        if converged:
+        if active.size == 0:
             break
-    return np.where(valid, a, np.nan)
+        current, goal = a[active], target[active]
+        residual = log_minus_digamma(current) - goal
+        # d/da [log a - ψ(a)] = -(a ψ'(a) - 1) / a; Newton's step in 1/a
+        inverse = 1.0 / current - residual / (current * trigamma_excess(current))
+        updated = np.where(inverse > 0, 1.0 / np.where(inverse > 0, inverse, 1.0), current / 2.0)
+        a[active] = updated
+        active = active[np.abs(updated - current) > tolerance * current]
+    shapes[valid] = a
+    return shapes.reshape(s.shape)
 
 
 @dataclass(frozen=True)

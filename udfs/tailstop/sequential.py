@@ -31,8 +31,8 @@ Where a bound cannot decide, σ̂² is computed by the functions
 ``rule.rule_sigma2`` uses, on the same running sums, so the decisions are
 those of ``rule.stops`` (the tests compare them); the bounds are applied with
 a safety margin far above rounding error. The fitted shapes of all prefixes
-are solved at once (``prefix_shapes``, equal to ``fit.shape_from_log_ratio``
-to 1e-13 and much faster on long logs).
+are solved at once (``fit.shape_from_log_ratio``, each prefix converging on
+its own).
 
 References: Chow, Y. S. & Robbins, H. (1965), Ann. Math. Statist. 36,
 457–462; Banerjee, S. & Mukhopadhyay, N. (2016), Ann. Inst. Stat. Math. 68,
@@ -45,7 +45,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .fit import log_minus_digamma
+from .fit import shape_from_log_ratio
 from .methods import METHOD_NAMES, SufficientStatistics
 from .rule import MIN_PILOT, boundary_factor, regularized_pass_fail_sigma2
 from .tail import log_density_term, tail_probability_standard
@@ -64,7 +64,6 @@ __all__ = [
     "stopping_units",
     "units_needed_now",
     "two_stage_plan",
-    "prefix_shapes",
     "known_shape_sigma2_floor",
 ]
 
@@ -79,8 +78,6 @@ _LARGEST_CHUNK = 1 << 16
 _BLOCK = 256
 # A bound rules a check point out only when n < (1 - margin) · (z/log d)² · bound.
 _MARGIN = 1e-6
-# Newton's slope: the asymptotic series of ψ' from this argument on.
-_SERIES_FROM = 8.0
 
 
 # --------------------------------------------------------------------------- results
@@ -284,40 +281,6 @@ def two_stage_plan(pilot_lifetimes, threshold, accuracy, confidence, method="pas
     return TwoStagePlan(pilot_units=int(x.size), sigma2=sigma2, total_units=total)
 
 
-def prefix_shapes(log_ratio, *, tolerance=1e-12, iterations=60):
-    """Solve log a - ψ(a) = s for every element of s at once (the gamma ML shape of each prefix).
-
-    Newton's method in 1/a from the Minka (2002) starting value, as
-    ``fit.shape_from_log_ratio``, but each element stops as soon as its own
-    step is below ``tolerance`` (relative): an element's result depends on
-    that element only (a prefix gets the same shape whether it is solved with
-    ten other prefixes or a million), and converged elements cost nothing.
-    Newton's slope a ψ'(a) - 1 comes from a short series (``_trigamma_excess``),
-    accurate to about 1e-10; the slope only sets the speed of convergence,
-    the root is that of the exact residual.
-
-    Returns NaN where s is not positive and finite (all values equal).
-    """
-    s = np.asarray(log_ratio, dtype=float)
-    flat = s.reshape(-1)
-    shapes = np.full(flat.size, np.nan)
-    valid = np.flatnonzero(np.isfinite(flat) & (flat > 0))
-    target = flat[valid]
-    a = (3.0 - target + np.sqrt((target - 3.0) ** 2 + 24.0 * target)) / (12.0 * target)
-    active = np.arange(a.size)
-    for _ in range(iterations):
-        if active.size == 0:
-            break
-        current, goal = a[active], target[active]
-        residual = log_minus_digamma(current) - goal
-        inverse = 1.0 / current - residual / (current * _trigamma_excess(current))
-        updated = np.where(inverse > 0, 1.0 / np.where(inverse > 0, inverse, 1.0), current / 2.0)
-        a[active] = updated
-        active = active[np.abs(updated - current) > tolerance * current]
-    shapes[valid] = a
-    return shapes.reshape(s.shape)
-
-
 # --------------------------------------------------------------------------- checks
 
 
@@ -493,7 +456,7 @@ class _FittedShape:
 
     @staticmethod
     def _shape_and_t(statistics, n, threshold):
-        shape = prefix_shapes(statistics.log_ratio[n - 1])
+        shape = shape_from_log_ratio(statistics.log_ratio[n - 1])
         valid = np.flatnonzero(np.isfinite(shape))
         shape, units = shape[valid], n[valid]
         # the same operations as methods._FittedShape.estimate
@@ -529,30 +492,4 @@ class _FittedShape:
 
 _EVALUATORS = {"pass-fail": _PassFail, "known-shape": _KnownShape, "fitted-shape": _FittedShape}
 
-
-def _trigamma_excess(shape):
-    """a ψ'(a) - 1, to about 1e-10 relative, for Newton's slope.
-
-    ψ'(a) = Σ_{j<J} 1/(a + j)² + ψ'(a + J), the last by its asymptotic
-    series once a + J >= 8 (Abramowitz & Stegun 6.4.12, from memory); for a >= 8 the
-    series of a ψ'(a) - 1 itself, which has no cancellation.
-    """
-    a = np.asarray(shape, dtype=float)
-    big = a >= _SERIES_FROM
-    inv = 1.0 / np.where(big, a, _SERIES_FROM)
-    inv2 = inv * inv
-    series = inv * (0.5 + inv * (1 / 6 + inv2 * (-1 / 30 + inv2 * (1 / 42 + inv2 * (-1 / 30 + inv2 * 5 / 66)))))
-    if big.all():
-        return series
-    x = np.where(big, _SERIES_FROM, a)
-    head = np.zeros_like(x)
-    for _ in range(int(_SERIES_FROM)):
-        shift = x < _SERIES_FROM
-        head = head + np.where(shift, 1.0 / (x * x), 0.0)
-        x = np.where(shift, x + 1.0, x)
-    y = 1.0 / x
-    y2 = y * y
-    tail = y * (1.0 + y * (0.5 + y * (1 / 6 + y2 * (-1 / 30 + y2 * (1 / 42 + y2 * (-1 / 30 + y2 * 5 / 66))))))
-    small = a * (head + tail) - 1.0
-    return np.where(big, series, small)
 
