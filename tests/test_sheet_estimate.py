@@ -135,6 +135,18 @@ def test_bad_arguments_say_what_to_fix(call, fragment):
     assert is_message(result) and fragment in result, result
 
 
+def test_pass_fail_survivors_count_as_beyond_the_threshold():
+    # 5 units: two failures beyond 1000, one survivor taken off at 1000 (counts), two failures below
+    column = [[1200.0], ["1000+"], [300.0], [1500.0], [700.0]]
+    assert TAIL_PROB_EST(column, 1000.0) == 0.6
+    [[low, high]] = TAIL_PROB_BOUNDS(column, 1000.0, 2.0)
+    assert low == pytest.approx(1.5 / (2 + 1.5), rel=1e-12)  # q = 0.6/0.4 = 1.5, METHOD.md §2
+    for refused, fragment in ((TAIL_PROB_EST(column, 1000.0, "fitted-shape"), "row 2 marks a survivor"),
+                              (TAIL_PROB_EST(column, 1100.0), "below the threshold"),
+                              (GAMMA_FIT_SHAPE(column), "row 2 marks a survivor")):
+        assert is_message(refused) and fragment in refused, refused
+
+
 def test_method_names_are_forgiving():
     column = [[1.0], [5.0], [9.0]]
     assert TAIL_PROB_EST(column, 4.0, "Fitted Shape") == TAIL_PROB_EST(column, 4.0, "fitted-shape")

@@ -11,8 +11,8 @@ from __future__ import annotations
 import datetime as _dt
 import math
 from dataclasses import dataclass
-from itertools import chain, compress, repeat
-from operator import is_not, itemgetter
+from itertools import chain
+from operator import itemgetter
 
 import numpy as np
 
@@ -21,7 +21,6 @@ __all__ = [
     "ERROR_PREFIX",
     "CleanRange",
     "clean_lifetimes",
-    "clean_flags",
     "number",
     "positive",
     "accuracy",
@@ -164,95 +163,26 @@ def _position(rows, flat_index, single_column):
     return f"cell {flat_index + 1}"
 
 
-def _flat_cells(values):
-    rows = _rows_of(values)
-    single_column = set(map(len, rows)) <= {1}
-    flat = list(map(itemgetter(0), rows)) if single_column else list(chain.from_iterable(rows))
-    return rows, flat, single_column
-
-
-def _non_blank(flat):
-    """Positions and values of the non-blank cells (cheap when none, or nearly all, are blank)."""
-    if flat.count(None) == 0:
-        return None, flat
-    index = list(compress(range(len(flat)), map(is_not, flat, repeat(None))))
-    return index, list(map(flat.__getitem__, index))
-
-
 def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
-    """Positive finite lifetimes from a range; blanks are skipped.
+    """Positive finite failure times from a range; blanks are skipped.
+
+    For formulas that need every unit's failure time: a survivor mark
+    (``1500+``) is refused like any other unusable cell.
 
     Raises
     ------
     InputError
         Naming the first offending cell: "row 17 holds text 'n/a'".
     """
-    rows, flat, single_column = _flat_cells(values)
-    index, cells = _non_blank(flat)
-    numbers = _fast_numbers(cells)
-    if numbers is None:
-        converted = map(_as_number, cells)
-        numbers = np.array([np.nan if v is None else v for v in converted], dtype=float)
-    good = np.isfinite(numbers) & (numbers > 0)
-    if not good.all():
-        first = int(np.argmin(good))
-        flat_index = first if index is None else index[first]
-        raise InputError(f"{name}: {_position(rows, flat_index, single_column)} {describe(cells[first])}")
-    if numbers.size < minimum:
-        raise InputError(f"{name}: needs at least {minimum} lifetimes (found {numbers.size})")
-    flat_positions = np.arange(len(flat)) if index is None else np.asarray(index, dtype=np.int64)
-    row_of = flat_positions if single_column else _row_numbers(rows, flat_positions)
-    return CleanRange(values=numbers, rows=row_of, n_rows=len(rows))
-
-
-def _fast_numbers(cells):
-    """The cells as floats when they are all plain numbers (the common case), else None."""
-    kinds = set(map(type, cells))
-    if not kinds <= {float, int}:
-        return None
-    if int in kinds and not SPREADSHEET_ERROR_CODES.keys().isdisjoint(cells):
-        return None
-    try:
-        return np.array(cells, dtype=float)
-    except OverflowError:
-        return None
-
-
-def _row_numbers(rows, flat_index):
-    starts = np.cumsum([0] + [len(row) for row in rows])
-    return np.searchsorted(starts, np.asarray(flat_index, dtype=np.int64), side="right") - 1
-
-
-def clean_flags(values, n_rows, name="survivors"):
-    """A range of yes/no flags, one per row; blank, 0, FALSE, 'no' are no."""
-    rows, flat, single_column = _flat_cells(values)
-    if not single_column:
-        raise InputError(f"{name}: must be a single column")
-    if len(flat) != n_rows:
-        raise InputError(f"{name}: must have as many rows as the observations ({n_rows}, got {len(flat)})")
-    flags = np.zeros(len(flat), dtype=bool)
-    for i, v in enumerate(flat):
-        if is_missing(v):
-            continue
-        if isinstance(v, bool):
-            flags[i] = v
-            continue
-        as_number = _as_number(v)
-        if as_number is not None and as_number in (0.0, 1.0):
-            flags[i] = as_number == 1.0
-            continue
-        text = v.strip().lower() if isinstance(v, str) else None
-        if text in _YES:
-            flags[i] = True
-        elif text in _NO:
-            flags[i] = False
-        else:
-            raise InputError(f"{name}: row {i + 1} {describe(v)}; use 1/0, TRUE/FALSE or yes/no")
-    return flags
-
-
-_YES = {"yes", "y", "true", "survivor", "survived", "s"}
-_NO = {"no", "n", "false", "failed", "f"}
+    log = read_log_cells(values, name)
+    if log.problem:
+        raise InputError(log.problem)
+    log = log.refuse(log.survivors, lambda value: f"marks a survivor ({value:g}+); this needs failure times")
+    if log.problem:
+        raise InputError(log.problem)
+    if log.values.size < minimum:
+        raise InputError(f"{name}: needs at least {minimum} lifetimes (found {log.values.size})")
+    return CleanRange(values=log.values, rows=log.rows, n_rows=log.n_rows)
 
 
 def number(value, name) -> float:

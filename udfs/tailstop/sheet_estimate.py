@@ -10,7 +10,8 @@ from .tail import tail_probability
 
 # Help texts shared by several formulas (the spreadsheet shows them per argument).
 HELP = {
-    "observations": "Range of lifetimes, one unit per cell (hours, cycles, ...); blank cells are skipped",
+    "observations": "Range of lifetimes, one unit per cell (hours, cycles, ...); blanks skipped; 1500+ marks a pass-fail survivor",
+    "failure_times": "Range of failure times, one unit per cell (hours, cycles, ...); blank cells are skipped",
     "threshold": "The threshold c > 0 (mission time, warranty limit), same unit as the lifetimes",
     "shape": "Gamma shape a > 0 (dimensionless)",
     "scale": "Gamma scale s > 0, same unit as the lifetimes (mean = shape * scale)",
@@ -34,11 +35,22 @@ def clean_method_and_shape(method, shape):
 
 
 def estimate_from_cells(observations, threshold, method, shape):
-    """The core estimate for formula arguments as a spreadsheet passes them."""
+    """The core estimate for formula arguments as a spreadsheet passes them.
+
+    A pass-fail log may mark survivors (``1500+``, taken off test at or
+    beyond the threshold without failing): they count as beyond it.
+    """
     name, shape_value = clean_method_and_shape(method, shape)
-    lifetimes = cells.clean_lifetimes(observations, minimum=2).values
     c = cells.positive(threshold, "threshold")
-    return estimate_tail(lifetimes, c, name, shape_value)
+    log = cells.read_log_cells(observations)
+    if not log.problem:
+        log = log.for_method(name, c)
+    if log.problem:
+        raise cells.InputError(log.problem)
+    if log.values.size < 2:
+        raise cells.InputError(f"observations: needs at least 2 lifetimes (found {log.values.size})")
+    survivors = log.survivors if log.survivors.any() else None
+    return estimate_tail(log.values, c, name, shape_value, survivors=survivors)
 
 
 def _needs_both_sides(estimate):
@@ -143,19 +155,19 @@ def _fit(observations):
         raise cells.InputError(str(problem)) from None
 
 
-@formula(ranges=("observations",), observations=HELP["observations"])
+@formula(ranges=("observations",), observations=HELP["failure_times"])
 def GAMMA_FIT_SHAPE(observations):
     """Gamma shape fitted by maximum likelihood to the lifetimes (location 0)."""
     return _fit(observations).shape
 
 
-@formula(ranges=("observations",), observations=HELP["observations"])
+@formula(ranges=("observations",), observations=HELP["failure_times"])
 def GAMMA_FIT_SCALE(observations):
     """Gamma scale fitted by maximum likelihood to the lifetimes, in their unit (location 0)."""
     return _fit(observations).scale
 
 
-@formula(ranges=("observations",), observations=HELP["observations"])
+@formula(ranges=("observations",), observations=HELP["failure_times"])
 def GAMMA_FIT_PVALUE(observations):
     """Goodness-of-fit p-value of the gamma model (Anderson-Darling, estimated parameters); small means a poor fit."""
     values = cells.clean_lifetimes(observations, minimum=2).values

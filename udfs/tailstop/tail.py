@@ -130,7 +130,9 @@ def tail_probability(threshold, shape, scale) -> TailProbability:
     _require(scale, "scale", "a positive finite number")
     if not np.all(np.isfinite(threshold) & (threshold >= 0)):
         raise ValueError("threshold must be a finite number >= 0")
-    return tail_probability_standard(shape, threshold / scale)
+    with np.errstate(over="ignore"):
+        t = threshold / scale  # inf when the threshold is beyond every double: p = 0
+    return tail_probability_standard(shape, t)
 
 
 def tail_probability_standard(shape, t) -> TailProbability:
@@ -139,11 +141,12 @@ def tail_probability_standard(shape, t) -> TailProbability:
     upper = special.gammaincc(shape, t)
     lower = special.gammainc(shape, t)
     upper_small = upper <= 0.5
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore"):
         log_p = np.where(upper_small, np.log(upper), np.log1p(-lower))
         log_cdf = np.where(upper_small, np.log1p(-upper), np.log(lower))
-    log_p = _patch_underflow(log_p, upper < _UNDERFLOW, shape, t, _log_upper_continued_fraction, t > 0)
-    log_cdf = _patch_underflow(log_cdf, lower < _UNDERFLOW, shape, t, _log_lower_series, t > 0)
+    inside = (t > 0) & np.isfinite(t)
+    log_p = _patch_underflow(log_p, upper < _UNDERFLOW, shape, t, _log_upper_continued_fraction, inside)
+    log_cdf = _patch_underflow(log_cdf, lower < _UNDERFLOW, shape, t, _log_lower_series, inside)
     p = np.where(upper_small, upper, 1.0 - lower)
     p = np.where(upper < _UNDERFLOW, np.exp(log_p), p)
     return TailProbability(p=p, log_p=log_p, log_cdf=log_cdf)
