@@ -35,6 +35,7 @@ def build_parser():
 def _load_commands():
     from . import demo  # noqa: F401
     from . import plan_command  # noqa: F401
+    from . import recalc_command  # noqa: F401
 
 
 def main(argv=None):

@@ -1,0 +1,48 @@
+"""`tailstop recalc` from the command line."""
+from __future__ import annotations
+
+import openpyxl
+import pytest
+from scipy import stats
+
+from tailstop.cli import main
+
+
+def make_book(path):
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Check"
+    sheet["A1"], sheet["B1"] = "threshold", 3.841
+    sheet["A2"], sheet["B2"] = "shape", 0.5
+    sheet["A3"], sheet["B3"] = "scale", 2.0
+    sheet["A4"], sheet["B4"] = "P(X > threshold)", "=TAIL_PROB(B1,B2,B3)"
+    for row, value in enumerate([120.0, 800.0, None, 2300.0, 40.0], start=6):
+        sheet.cell(row=row, column=1, value=value)
+    sheet["B6"] = "=TAIL_PROB_EST(A6:A10,500)"
+    book.save(path)
+    return path
+
+
+def test_recalc_writes_a_new_book_with_the_values(tmp_path, capsys):
+    book = make_book(tmp_path / "check.xlsx")
+    assert main(["recalc", str(book)]) == 0
+    out = tmp_path / "check-recalc.xlsx"
+    values = openpyxl.load_workbook(out, data_only=True)["Check"]
+    # check value: NIST/SEMATECH §1.3.6.7.4 — chi-square 1 df (gamma 0.5, 2) upper 0.05 point is 3.841
+    assert values["B4"].value == pytest.approx(stats.chi2.sf(3.841, 1), rel=1e-12)
+    assert values["B4"].value == pytest.approx(0.05, abs=2e-4)
+    assert values["B6"].value == 0.5  # 800 and 2300 of 4 units are beyond 500; the blank is skipped
+    formulas = openpyxl.load_workbook(out)["Check"]
+    assert formulas["B4"].value == "=TAIL_PROB(B1,B2,B3)"
+    assert "wrote" in capsys.readouterr().out
+    # the source is untouched and a second run refuses to overwrite the first result
+    assert openpyxl.load_workbook(book)["Check"]["B4"].value == "=TAIL_PROB(B1,B2,B3)"
+    assert main(["recalc", str(book)]) == 1
+
+
+def test_recalc_refuses_a_file_that_is_not_a_workbook(tmp_path, capsys):
+    fake = tmp_path / "notes.xlsx"
+    fake.write_text("unit,hours\n1,200\n")
+    assert main(["recalc", str(fake)]) == 1
+    message = capsys.readouterr().err
+    assert message.startswith("tailstop recalc:") and "Traceback" not in message

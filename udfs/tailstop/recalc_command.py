@@ -1,0 +1,46 @@
+"""``tailstop recalc``: compute a workbook that uses tailstop formulas, with no spreadsheet program."""
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from .cli import command
+
+
+def default_output(book: Path) -> Path:
+    """BOOK.xlsx -> BOOK-recalc.xlsx beside it."""
+    return book.with_name(f"{book.stem}-recalc{book.suffix}")
+
+
+@command("recalc", "Evaluate the tailstop and ordinary formulas of a workbook and store the results beside them.")
+def add_arguments(parser):
+    parser.add_argument("book", type=Path, help="the .xlsx workbook to compute")
+    parser.add_argument("--out", type=Path, help="where to write the result (default: BOOK-recalc.xlsx beside it)")
+    parser.add_argument("--in-place", action="store_true", help="replace BOOK itself (a backup is kept)")
+    parser.add_argument("--no-backup", action="store_true", help="with --in-place: keep no backup copy")
+    parser.add_argument("--allow-lossy", action="store_true",
+                        help="go on even if content the file holds would be lost on saving (it says what)")
+    return run
+
+
+def run(args):
+    from .workbooks.package import WorkbookRefused
+    from .workbooks.recalc import recalc
+
+    if args.no_backup and not args.in_place:
+        raise ValueError("--no-backup goes with --in-place")
+    target = args.book if args.in_place else (args.out or default_output(args.book))
+    try:
+        result = recalc(args.book, target, in_place=args.in_place, backup=not args.no_backup,
+                        allow_lossy=args.allow_lossy)
+    except WorkbookRefused as refusal:
+        print(f"tailstop recalc: {refusal}", file=sys.stderr)
+        return 1
+    print(f"wrote {result.path} ({len(result.values)} formula cells computed)")
+    if result.backup:
+        print(f"backup of the original: {result.backup}")
+    for sheet, cell, value in result.errors[:20]:
+        print(f"  {sheet}!{cell}: {value}")
+    if len(result.errors) > 20:
+        print(f"  ... and {len(result.errors) - 20} more cells with errors")
+    return 0
