@@ -241,6 +241,15 @@ def test_known_shape_accuracy_against_the_exponential_hand_formula():
     assert hand_units(sigma2, 1.3) > 50 >= hand_units(sigma2, 4.0)
 
 
+@pytest.mark.parametrize("method,shape", [("pass-fail", None), ("known-shape", 2.4), ("fitted-shape", None)])
+def test_accuracy_note_quotes_the_units_needed_now(gamma_log, method, shape):
+    # the note's figure is the one the spreadsheet shows in UNITS_NEEDED_NOW for the same log
+    from tailstop.sheet import UNITS_NEEDED_NOW
+
+    notes = [n for n in method_notes(gamma_log, 1500.0, method, shape, 1.2, 0.95) if n.code == "accuracy-needs-more"]
+    assert notes and notes[0].figures["units_needed"] == UNITS_NEEDED_NOW(column(gamma_log), 1500.0, 1.2, 0.95, method, shape)
+
+
 def test_accuracy_needs_both_arguments(gamma_log):
     with pytest.raises(ValueError, match="both"):
         method_notes(gamma_log, 1500.0, accuracy=1.5)
@@ -299,6 +308,26 @@ def test_formula_says_so_when_nothing_applies():
     values = BELOW[-5:] + ABOVE[:5]
     assert TAIL_METHOD_NOTES(column(values), 100.0) == [[NO_NOTES_TEXT]]
     assert TAIL_METHOD_NOTES(column(values), "100", "Pass Fail", None) == [[NO_NOTES_TEXT]]
+
+
+def test_formula_reads_survivor_marks_for_pass_fail():
+    # five units taken off test at the threshold without failing, written 100+, count as beyond it
+    values = [[v] for v in BELOW[:5]] + [["100+"]] * 5
+    assert TAIL_METHOD_NOTES(values, 100.0) == [[NO_NOTES_TEXT]]
+    without_marks = [[v] for v in BELOW[:5]] + [[100.0]] * 5
+    assert "at or before" in TAIL_METHOD_NOTES(without_marks, 100.0)[0][0]
+
+
+@pytest.mark.parametrize("method,shape,fragment", [("fitted-shape", None, "survivor"), ("known-shape", 2, "survivor")])
+def test_formula_refuses_survivors_for_gamma_methods(method, shape, fragment):
+    values = [[v] for v in BELOW[:5]] + [["100+"]] * 5
+    result = TAIL_METHOD_NOTES(values, 100.0, method, shape)
+    assert isinstance(result, str) and result.startswith("#TAILSTOP!") and fragment in result
+
+
+def test_formula_refuses_a_survivor_below_the_threshold():
+    result = TAIL_METHOD_NOTES([[10.0], [20.0], ["50+"], [130.0]], 100.0)
+    assert isinstance(result, str) and result.startswith("#TAILSTOP!") and "row 3" in result
 
 
 @pytest.mark.parametrize("args,fragment", [

@@ -24,8 +24,9 @@ Warnings, in the order they are listed:
     gives way to ``one-side-only`` when that side is empty).
 ``accuracy-needs-more``
     Only when an accuracy and a confidence are given: the plug-in unit count
-    (z / log d)² σ̂²_n, with σ̂²_n as the stopping rule uses it, is larger
-    than the number of units in the log.
+    (z / log d)² σ̂²_n, with σ̂²_n as the stopping rule uses it
+    (``sequential.units_needed_now``, the figure of UNITS_NEEDED_NOW), is
+    larger than the number of units in the log — the rule would say CONTINUE.
 """
 from __future__ import annotations
 
@@ -34,10 +35,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special, stats
 
-from . import accuracy as _accuracy
 from .fit import gamma_fit_pvalue, shape_from_log_ratio
 from .methods import METHOD_NAMES, SufficientStatistics, estimate_tail
-from .rule import rule_sigma2
+from .sequential import units_needed_now
 
 __all__ = [
     "Note",
@@ -160,7 +160,7 @@ def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=Non
         notes += _shape_notes(x, shape)
     notes += _side_notes(int(statistics.n), int(statistics.exceedances), method)
     if check_accuracy:
-        notes += _accuracy_notes(statistics, threshold, method, shape, accuracy, confidence)
+        notes += _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors)
     return notes
 
 
@@ -226,17 +226,19 @@ def _check_requested_accuracy(accuracy, confidence):
     return True
 
 
-def _accuracy_notes(statistics, threshold, method, shape, accuracy, confidence):
-    n = int(statistics.n)
-    sigma2 = float(rule_sigma2(statistics, threshold, method, shape))
-    needed = float(_accuracy.whole_units(_accuracy.units_for_accuracy(sigma2, accuracy, confidence)))
+def _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors):
+    n = int(x.size)
+    try:
+        plan = units_needed_now(x, threshold, accuracy, confidence, method, shape, survivors=survivors)
+    except ValueError:
+        return []  # pass-fail with every unit on one side: the one-side-only note already says the rule cannot stop
     wanted = f"odds within a factor {accuracy:g} at {confidence * 100:g} % confidence"
-    if not np.isfinite(needed):
+    if not np.isfinite(plan.needed):
         return [Note("accuracy-needs-more",
                      f"{wanted} cannot be planned from this log: the estimate is too close to 0 or 1",
-                     {"units_needed": needed, "units": n})]
-    if not needed > n:
+                     {"units_needed": plan.needed, "units": n})]
+    if not plan.needed > n:
         return []
     return [Note("accuracy-needs-more",
-                 f"{wanted} need about {needed:,.0f} units; the log holds {n}",
-                 {"units_needed": needed, "units": n})]
+                 f"{wanted} need about {plan.whole:,} units; the log holds {n}",
+                 {"units_needed": plan.whole, "units": n})]

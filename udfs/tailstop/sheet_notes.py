@@ -1,5 +1,9 @@
 """Formula: the warnings that apply to an estimate, one short line each.
 
+A pass-fail log may mark survivors as the estimate formulas read them
+(``1500+``: taken off test at or beyond the threshold without failing); they
+count as beyond the threshold.
+
 The formula has no accuracy or confidence argument, so it lists the model
 and data warnings only. Whether the requested accuracy needs more units than
 the log holds is what the decision column says (CONTINUE on the last row);
@@ -21,6 +25,13 @@ from .sheet_estimate import HELP, clean_method_and_shape
 def TAIL_METHOD_NOTES(observations, threshold, method=None, shape=None):
     """Warnings that apply to the estimate from this log and method, one line each (a column)."""
     name, shape_value = clean_method_and_shape(method, shape)
-    lifetimes = cells.clean_lifetimes(observations, minimum=2).values
     c = cells.positive(threshold, "threshold")
-    return [[line] for line in note_lines(method_notes(lifetimes, c, name, shape_value))]
+    log = cells.read_log_cells(observations)
+    if not log.problem:
+        log = log.for_method(name, c)
+    if log.problem:
+        raise cells.InputError(log.problem)
+    if log.values.size < 2:
+        raise cells.InputError(f"observations: needs at least 2 lifetimes (found {log.values.size})")
+    survivors = log.survivors if log.survivors.any() else None
+    return [[line] for line in note_lines(method_notes(log.values, c, name, shape_value, survivors=survivors))]
