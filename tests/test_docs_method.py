@@ -91,3 +91,18 @@ def test_links_between_pages_resolve(name):
         if anchor:
             headings = re.findall(r"^#+ (.+)$", linked.read_text(encoding="utf-8"), flags=re.MULTILINE)
             assert anchor in {_anchor(h) for h in headings}, f"{name} links to missing anchor {target}"
+
+
+def test_getting_started_python_examples_run_and_say_what_the_comments_say(capsys):
+    blocks = re.findall(r"```python\n(.*?)```", page("getting-started.md"), flags=re.DOTALL)
+    assert len(blocks) == 2
+    for block in blocks:
+        exec(compile(block, "getting-started.md", "exec"), {})
+    printed = capsys.readouterr().out.splitlines()
+    decisions = eval(printed[0])  # noqa: S307 - our own printed list
+    assert [row[0] for row in decisions] == ["PILOT"] * 9 + ["CONTINUE"] * 3
+    # 1730, 2290, 1500+ (a survivor) and 1622 are beyond 1500; 1500 itself is not (hand count)
+    assert float(printed[1]) == pytest.approx(4 / 12)
+    assert "4 of 12 units outlasted the threshold" in printed[2]
+    assert printed[3].startswith("few-on-a-side - 3 of 11")
+    assert printed[4].startswith("accuracy-needs-more")
