@@ -77,3 +77,14 @@ def test_pvalue_detects_a_clearly_non_gamma_sample():
     bimodal = np.concatenate([rng.normal(10, 0.3, 40), rng.normal(100, 3, 40)])
     assert gamma_fit_pvalue(bimodal) < 0.01
     assert gamma_fit_pvalue(rng.gamma(2.0, 5.0, size=80)) > 0.05
+
+
+def test_long_logs_use_fewer_samples_and_the_longest_are_refused():
+    # memory and time of the Monte Carlo check are bounded by GOF_VALUE_BUDGET values
+    from tailstop.fit import GOF_MIN_SAMPLES, GOF_VALUE_BUDGET, gof_samples
+
+    assert gof_samples(40) == 999
+    assert gof_samples(100_000) * 100_000 <= GOF_VALUE_BUDGET
+    too_long = GOF_VALUE_BUDGET // GOF_MIN_SAMPLES + 1
+    with pytest.raises(ValueError, match="at most"):
+        gamma_fit_pvalue(np.random.default_rng(1).gamma(2.0, 1.0, size=too_long))

@@ -156,16 +156,38 @@ def fit_gamma(observations) -> GammaFit:
     return GammaFit(shape=shape, scale=mean / shape, n=x.size)
 
 
+# The Monte Carlo fit check draws samples × n values at once; this bounds
+# its memory (about 8 bytes a value) and time.
+GOF_VALUE_BUDGET = 20_000_000
+GOF_MIN_SAMPLES = 99
+
+
+def gof_samples(n, samples=999):
+    """Monte Carlo samples the fit check uses for n units (fewer for long logs, within the budget)."""
+    return int(min(samples, GOF_VALUE_BUDGET // max(int(n), 1)))
+
+
 def gamma_fit_pvalue(observations, *, samples=999, seed=20261201) -> float:
     """Goodness-of-fit p-value of a gamma model with estimated shape and scale.
 
     Monte Carlo Anderson–Darling test with the parameters re-estimated on
     every simulated sample (``scipy.stats.goodness_of_fit``), location 0.
     Seeded, so the same data always give the same p-value; its Monte Carlo
-    resolution is about 1/(samples + 1).
+    resolution is about 1/(samples + 1). Logs of more than
+    GOF_VALUE_BUDGET / samples units use fewer samples (at least 99), so that
+    memory and time stay bounded; longer logs than that are refused.
+
+    Raises
+    ------
+    ValueError
+        Not a gamma sample (see ``fit_gamma``), or more units than the check handles.
     """
     x = np.asarray(observations, dtype=float).ravel()
     fit_gamma(x)  # same validation and the same error texts as the fit
+    samples = gof_samples(x.size, samples)
+    if samples < GOF_MIN_SAMPLES:
+        raise ValueError(f"the fit check handles at most {GOF_VALUE_BUDGET // GOF_MIN_SAMPLES:,} units "
+                         f"(got {x.size:,}); check a part of the log, e.g. the first units")
     result = stats.goodness_of_fit(
         stats.gamma,
         x,

@@ -10,6 +10,9 @@ Warnings, in the order they are listed:
 ``gamma-fit-fails``
     A gamma-based method (known-shape, fitted-shape) is used and the gamma
     fit check (``fit.gamma_fit_pvalue``) gives p < 0.05. Points to pass-fail.
+``gamma-fit-skipped``
+    A gamma-based method on a log longer than the fit check handles
+    (``fit.GOF_VALUE_BUDGET``): the check is not run, and the note says so.
 ``gamma-fit-impossible``
     known-shape on a log whose lifetimes are all equal: the fit check cannot
     run, and equal lifetimes are not what a gamma model produces.
@@ -173,7 +176,10 @@ def _fit_notes(x):
     if not float(SufficientStatistics.of(x, np.inf).log_ratio) > _EQUAL_LIFETIMES:
         return [Note("gamma-fit-impossible",
                      "gamma fit check cannot run: all lifetimes are equal; use pass-fail")]
-    pvalue = gamma_fit_pvalue(x)
+    try:
+        pvalue = gamma_fit_pvalue(x)
+    except ValueError as reason:
+        return [Note("gamma-fit-skipped", f"gamma fit check not run: {reason}")]
     if pvalue >= FIT_LEVEL:
         return []
     return [Note("gamma-fit-fails",

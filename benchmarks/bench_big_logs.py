@@ -1,0 +1,115 @@
+"""Peak memory of a full-sheet log (1,048,576 rows) through every decision formula and annotate.
+
+Each case runs in a fresh child process; the figure reported is the child's
+peak resident memory (getrusage ru_maxrss), which includes the interpreter,
+numpy/scipy and the 1,048,576-row input as a spreadsheet passes it (a list of
+one-element lists). The target is 1 GiB per case. Times are reported for
+information only, with a ratio against building the input itself.
+
+    python benchmarks/bench_big_logs.py [--rows N] [--skip-annotate]
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import subprocess
+import sys
+import tempfile
+import textwrap
+from pathlib import Path
+
+ROWS = 1_048_576
+LIMIT_MIB = 1024
+
+CHILD = textwrap.dedent("""
+    import json, resource, sys, time
+    import numpy as np
+    rows, formula, method = int(sys.argv[1]), sys.argv[2], sys.argv[3]
+    import tailstop.sheet as sheet
+    start = time.perf_counter()
+    # accuracy 1.002 needs millions of units: the decision column stays CONTINUE to the last row
+    column = [[float(v)] for v in np.random.default_rng(1).gamma(2.0, 500.0, size=rows)]
+    built = time.perf_counter() - start
+    args = {
+        "STOP_DECISION": (column, 2000.0, 1.002, 0.95, 10, method, 2.0),
+        "STOP_DECISION_COLUMN": (column, 2000.0, 1.002, 0.95, 10, method, 2.0),
+        "UNITS_NEEDED_NOW": (column, 2000.0, 1.01, 0.95, method, 2.0),
+        "TWO_STAGE_UNITS": (column, 2000.0, 1.01, 0.95, method, 2.0),
+        "TAIL_PROB_BOUNDS": (column, 2000.0, 1.01, method, 2.0),
+        "TAIL_METHOD_NOTES": (column, 2000.0, method, 2.0),
+        "GAMMA_FIT_PVALUE": (column,),
+    }[formula]
+    start = time.perf_counter()
+    result = sheet.FORMULAS[formula](*args)
+    elapsed = time.perf_counter() - start
+    shape = f"{len(result)} rows" if isinstance(result, list) else repr(result)[:40]
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(json.dumps({"peak_mib": peak, "seconds": elapsed, "build_seconds": built, "result": shape}))
+""")
+
+ANNOTATE_CHILD = textwrap.dedent("""
+    import json, resource, sys, time
+    from tailstop.cli import main
+    path, out = sys.argv[1], sys.argv[2]
+    start = time.perf_counter()
+    code = main(["annotate", path, "--column", "B", "--threshold", "2000", "--accuracy", "1.01",
+                 "--confidence", "0.95", "--pilot", "10", "--out", out])
+    elapsed = time.perf_counter() - start
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(json.dumps({"peak_mib": peak, "seconds": elapsed, "build_seconds": 0.0, "result": f"exit {code}"}))
+""")
+
+
+def run_child(script, *args):
+    done = subprocess.run([sys.executable, "-c", script, *map(str, args)], capture_output=True, text=True)
+    if done.returncode != 0:
+        return {"error": done.stderr.strip().splitlines()[-1] if done.stderr.strip() else f"exit {done.returncode}"}
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+def write_log(path, rows):
+    import numpy as np
+    import openpyxl
+
+    book = openpyxl.Workbook(write_only=True)
+    sheet = book.create_sheet("Log")
+    sheet.append(["Unit", "Hours"])
+    for unit, value in enumerate(np.random.default_rng(1).gamma(2.0, 500.0, size=rows - 1), start=1):
+        sheet.append([unit, float(value)])
+    book.save(path)
+
+
+def report(label, figures):
+    if "error" in figures:
+        print(f"{label:44s} FAILED: {figures['error']}")
+        return False
+    ok = figures["peak_mib"] < LIMIT_MIB
+    print(f"{label:44s} peak {figures['peak_mib']:7.0f} MiB  {'<' if ok else '>='} {LIMIT_MIB} MiB  "
+          f"time {figures['seconds']:6.2f} s  (ratio = time / building the input "
+          f"{figures['seconds'] / max(figures['build_seconds'], 1e-9):5.1f})  -> {figures['result']}")
+    return ok
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--rows", type=int, default=ROWS)
+    parser.add_argument("--skip-annotate", action="store_true")
+    args = parser.parse_args()
+    print(f"{args.rows:,} rows per case; peak resident memory of a fresh process per case")
+    ok = True
+    cases = [(f, m) for f in ("STOP_DECISION", "STOP_DECISION_COLUMN", "UNITS_NEEDED_NOW", "TWO_STAGE_UNITS")
+             for m in ("pass-fail", "known-shape", "fitted-shape")]
+    cases += [("TAIL_PROB_BOUNDS", "fitted-shape"), ("TAIL_METHOD_NOTES", "fitted-shape"), ("GAMMA_FIT_PVALUE", "-")]
+    for formula, method in cases:
+        ok &= report(f"{formula} ({method})", run_child(CHILD, args.rows, formula, method))
+    if not args.skip_annotate:
+        with tempfile.TemporaryDirectory() as folder:
+            log = Path(folder) / "big-log.xlsx"
+            write_log(log, args.rows)
+            ok &= report("tailstop annotate (pass-fail)", run_child(ANNOTATE_CHILD, log, Path(folder) / "out.xlsx"))
+    print("all cases within the memory target" if ok else "SOME CASES EXCEEDED THE TARGET OR FAILED")
+    return 0 if ok else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
