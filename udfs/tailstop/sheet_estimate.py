@@ -1,6 +1,10 @@
 """Formulas: exceedance probability, estimates, fixed-accuracy bounds, planning sizes, gamma fit."""
 from __future__ import annotations
 
+from dataclasses import dataclass
+
+import numpy as np
+
 from . import accuracy as _accuracy
 from . import cells
 from .fit import fit_gamma, gamma_fit_pvalue
@@ -34,8 +38,19 @@ def clean_method_and_shape(method, shape):
     return name, None
 
 
-def estimate_from_cells(observations, threshold, method, shape):
-    """The core estimate for formula arguments as a spreadsheet passes them.
+@dataclass(frozen=True)
+class LogArguments:
+    """The arguments of a formula over a log, cleaned: method, shape, threshold, units, survivors."""
+
+    method: str
+    shape: float | None
+    threshold: float
+    values: np.ndarray
+    survivors: np.ndarray | None
+
+
+def clean_log_arguments(observations, threshold, method, shape) -> LogArguments:
+    """Clean (observations, threshold, method, shape) as a spreadsheet passes them.
 
     A pass-fail log may mark survivors (``1500+``, taken off test at or
     beyond the threshold without failing): they count as beyond it.
@@ -50,7 +65,13 @@ def estimate_from_cells(observations, threshold, method, shape):
     if log.values.size < 2:
         raise cells.InputError(f"observations: needs at least 2 lifetimes (found {log.values.size})")
     survivors = log.survivors if log.survivors.any() else None
-    return estimate_tail(log.values, c, name, shape_value, survivors=survivors)
+    return LogArguments(name, shape_value, c, log.values, survivors)
+
+
+def estimate_from_cells(observations, threshold, method, shape):
+    """The core estimate for formula arguments as a spreadsheet passes them."""
+    log = clean_log_arguments(observations, threshold, method, shape)
+    return estimate_tail(log.values, log.threshold, log.method, log.shape, survivors=log.survivors)
 
 
 def _needs_both_sides(estimate):

@@ -12,10 +12,9 @@ warning too (``notes.method_notes(..., accuracy=, confidence=)``).
 """
 from __future__ import annotations
 
-from . import cells
 from .formula import formula
 from .notes import method_notes, note_lines
-from .sheet_estimate import HELP, clean_method_and_shape
+from .sheet_estimate import HELP, clean_log_arguments
 
 
 @formula(
@@ -24,14 +23,6 @@ from .sheet_estimate import HELP, clean_method_and_shape
 )
 def TAIL_METHOD_NOTES(observations, threshold, method=None, shape=None):
     """Warnings that apply to the estimate from this log and method, one line each (a column)."""
-    name, shape_value = clean_method_and_shape(method, shape)
-    c = cells.positive(threshold, "threshold")
-    log = cells.read_log_cells(observations)
-    if not log.problem:
-        log = log.for_method(name, c)
-    if log.problem:
-        raise cells.InputError(log.problem)
-    if log.values.size < 2:
-        raise cells.InputError(f"observations: needs at least 2 lifetimes (found {log.values.size})")
-    survivors = log.survivors if log.survivors.any() else None
-    return [[line] for line in note_lines(method_notes(log.values, c, name, shape_value, survivors=survivors))]
+    log = clean_log_arguments(observations, threshold, method, shape)
+    notes = method_notes(log.values, log.threshold, log.method, log.shape, survivors=log.survivors)
+    return [[line] for line in note_lines(notes)]
