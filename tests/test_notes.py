@@ -73,6 +73,16 @@ def test_pass_fail_needs_no_fit_check(two_cluster_log):
     assert not {"gamma-fit-fails", "gamma-fit-impossible", "shape-disagrees"} & set(codes(notes))
 
 
+def test_a_log_too_long_for_the_fit_check_says_the_check_was_skipped(gamma_log, monkeypatch):
+    from tailstop import fit
+
+    # shrink the check's budget so that this 60-unit log is "too long" for it
+    monkeypatch.setattr(fit, "GOF_VALUE_BUDGET", fit.GOF_MIN_SAMPLES * (gamma_log.size - 1))
+    notes = method_notes(gamma_log, 1500.0, "fitted-shape")
+    assert codes(notes)[0] == "gamma-fit-skipped" and "not run" in notes[0].text
+    assert "gamma-fit-skipped" not in codes(method_notes(gamma_log, 1500.0, "pass-fail"))
+
+
 def test_equal_lifetimes_under_known_shape_cannot_be_checked():
     notes = method_notes([50.0] * 8, 40.0, "known-shape", 2.0)
     assert codes(notes)[0] == "gamma-fit-impossible"
