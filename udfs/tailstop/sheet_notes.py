@@ -6,9 +6,10 @@ count as beyond the threshold.
 
 The formula has no accuracy or confidence argument, so it lists the model
 and data warnings only. Whether the requested accuracy needs more units than
-the log holds is what the decision column says (CONTINUE on the last row);
-the headless tools, which know the accuracy and confidence, print that
-warning too (``notes.method_notes(..., accuracy=, confidence=)``).
+the log holds is what the decision column says (CONTINUE on the last row,
+with UNITS_NEEDED_NOW saying by how much); code that knows the accuracy and
+confidence, such as the headless tools, gets that warning with the others
+from ``notes.method_notes(..., accuracy=, confidence=)``.
 """
 from __future__ import annotations
 
