@@ -317,3 +317,20 @@ def test_check_values_quoted_on_the_page():
 def test_column_b_is_column_a_run_as_a_pass_fail_test():
     # what the page says of its invented sheet: B is A with every unit past 1000 h taken off at 1000 h
     assert all(SHEET[("B", r)] == (SHEET[("A", r)] if SHEET[("A", r)] <= 1000 else "1000+") for r in range(2, 14))
+
+
+def test_limits_quoted_on_the_page_are_the_code_s():
+    from tailstop import fit, sheet_planning
+
+    said = " ".join(TEXT.split())
+    samples = inspect.signature(fit.gamma_fit_pvalue).parameters["samples"].default
+    assert samples == 999 and "999 simulated samples" in said
+    assert f"more than about {round(fit.GOF_VALUE_BUDGET / samples, -3):,.0f} units" in said
+    assert f"more than {fit.GOF_VALUE_BUDGET // fit.GOF_MIN_SAMPLES:,} units are refused" in said
+    limits = (f"exact plans up to {sheet_planning.EXACT_UNITS_LIMIT:,} units, at most "
+              f"{sheet_planning.REPLICATIONS_LIMIT:,} replications, and at most "
+              f"{sheet_planning.WORK_LIMIT['known-shape']:,} (known-shape) or "
+              f"{sheet_planning.WORK_LIMIT['fitted-shape']:,} (fitted-shape) replications × units per run")
+    assert limits in said
+    assert set(sheet_planning.DEFAULT_REPLICATIONS.values()) == {10_000} and "(default 10,000" in said
+    assert f"a whole number from 2 to {sheet_planning.EXACT_UNITS_LIMIT:,}" in said
