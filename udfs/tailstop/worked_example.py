@@ -195,7 +195,12 @@ def _g(value):
 
 
 def _units(value):
-    return f"{int(value):,}"
+    """A whole number of units as a cell shows it; a cell's #TAILSTOP! text as it is."""
+    return value if isinstance(value, str) else f"{int(value):,}"
+
+
+def _fixed(value, digits):
+    return value if isinstance(value, str) else f"{value:.{digits}f}"
 
 
 def _p(value):
@@ -327,17 +332,10 @@ B2:B{m + 1} and the plan in F1:F4 (threshold, accuracy, confidence, pilot):
 |---|---|---|
 | F6 | `=UNITS_NEEDED_NOW(B2:B{m + 1}, F1, F2, F3)` | {_units(s.pilot_needed)} |
 | F7 | `=TWO_STAGE_UNITS(B2:B{m + 1}, F1, F2, F3)` | {_units(s.two_stage)} |
-| F8 | `=GAMMA_FIT_PVALUE(B2:B{m + 1})` | {pvalue:.3f} |
+| F8 | `=GAMMA_FIT_PVALUE(B2:B{m + 1})` | {_fixed(pvalue, 3)} |
 | F9 | `=TAIL_METHOD_NOTES(B2:B{m + 1}, F1)` | {"; ".join(s.pilot_notes)} |
 
-The pilot's estimate says about {_units(s.pilot_needed)} units,
-{"more" if s.pilot_needed > s.fixed_units["pass-fail"] else "no more"} than the
-{s.fixed_units["pass-fail"]} planned: {s.pilot_beyond} of {m} valves says little
-about a share of this size. A two-stage plan would now
-order {_units(s.two_stage)} valves in all on the strength of those {m}. The
-sequential rule instead keeps re-estimating, valve by valve. (The pilot's
-gamma fit, shape {shape_fit:.2f} and scale {scale_fit:.0f} {unit}, is noted
-for the cross-check; with {m} units it decides nothing.)
+{_pilot_reading(s, m, unit)}
 
 ## The decision column
 
@@ -522,6 +520,25 @@ def _wrap_kept(lines, width):
             wrapped += textwrap.wrap(item, initial_indent="- ", subsequent_indent="  ", **wrap)
         return wrapped
     return textwrap.wrap(" ".join(line.strip() for line in lines), **wrap)
+
+
+def _pilot_reading(s, m, unit):
+    planned = s.fixed_units["pass-fail"]
+    if isinstance(s.pilot_needed, str):
+        reading = (f"The pilot cannot estimate the units needed yet — every pilot valve is on one side of the "
+                   f"threshold, and the cell says so. A two-stage plan could not be set from this pilot at all; the "
+                   f"sequential rule simply continues, valve by valve.")
+    else:
+        reading = (f"The pilot's estimate says about {_units(s.pilot_needed)} units, "
+                   f"{'more' if s.pilot_needed > planned else 'no more'} than the {planned} planned: "
+                   f"{s.pilot_beyond} of {m} valves says little about a share of this size. A two-stage plan would "
+                   f"now order {_units(s.two_stage)} valves in all on the strength of those {m}. The sequential rule "
+                   f"instead keeps re-estimating, valve by valve.")
+    shape_fit, scale_fit, _ = s.pilot_fit
+    if not isinstance(shape_fit, str):
+        reading += (f" (The pilot's gamma fit, shape {shape_fit:.2f} and scale {scale_fit:.0f} {unit}, is noted for "
+                    f"the cross-check; with {m} units it decides nothing.)")
+    return reading
 
 
 def _count(k, n):
