@@ -1,7 +1,7 @@
 """Peak memory of a full-sheet log (1,048,576 rows) through every decision formula and annotate.
 
 Each case runs in a fresh child process; the figure reported is the child's
-peak resident memory (getrusage ru_maxrss), which includes the interpreter,
+peak resident memory (VmHWM of /proc/self/status), which includes the interpreter,
 numpy/scipy and the 1,048,576-row input as a spreadsheet passes it (a list of
 one-element lists). The target is 1 GiB per case. Times are reported for
 information only, with a ratio against building the input itself.
@@ -22,7 +22,7 @@ ROWS = 1_048_576
 LIMIT_MIB = 1024
 
 CHILD = textwrap.dedent("""
-    import json, resource, sys, time
+    import json, sys, time
     import numpy as np
     rows, formula, method = int(sys.argv[1]), sys.argv[2], sys.argv[3]
     import tailstop.sheet as sheet
@@ -43,19 +43,19 @@ CHILD = textwrap.dedent("""
     result = sheet.FORMULAS[formula](*args)
     elapsed = time.perf_counter() - start
     shape = f"{len(result)} rows" if isinstance(result, list) else repr(result)[:40]
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    peak = next(int(line.split()[1]) for line in open("/proc/self/status") if line.startswith("VmHWM:")) / 1024
     print(json.dumps({"peak_mib": peak, "seconds": elapsed, "build_seconds": built, "result": shape}))
 """)
 
 ANNOTATE_CHILD = textwrap.dedent("""
-    import json, resource, sys, time
+    import json, sys, time
     from tailstop.cli import main
     path, out = sys.argv[1], sys.argv[2]
     start = time.perf_counter()
     code = main(["annotate", path, "--column", "B", "--threshold", "2000", "--accuracy", "1.01",
                  "--confidence", "0.95", "--pilot", "10", "--out", out])
     elapsed = time.perf_counter() - start
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    peak = next(int(line.split()[1]) for line in open("/proc/self/status") if line.startswith("VmHWM:")) / 1024
     print(json.dumps({"peak_mib": peak, "seconds": elapsed, "build_seconds": 0.0, "result": f"exit {code}"}))
 """)
 

@@ -189,21 +189,23 @@ HOSTILE = {
 }
 
 CHILD = textwrap.dedent("""
-    import json, resource, sys
+    import json, sys
     from tailstop.workbooks.safe_io import WorkbookRefused, open_workbook_safely
 
-    def rss():
-        with open("/proc/self/status") as status:
-            line = next(line for line in status if line.startswith("VmRSS:"))
+    def status(field):
+        # VmHWM is this process image's own peak; getrusage's ru_maxrss may carry the
+        # peak of the (large) test process that forked this one across exec
+        with open("/proc/self/status") as lines:
+            line = next(line for line in lines if line.startswith(field + ":"))
         return int(line.split()[1]) * 1024
 
-    before = rss()
+    before = status("VmRSS")
     try:
         open_workbook_safely(sys.argv[1])
         message = None
     except WorkbookRefused as refusal:
         message = str(refusal)
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    peak = status("VmHWM")
     print(json.dumps({"refused": message, "growth": peak - before}))
 """)
 
