@@ -1,0 +1,615 @@
+"""The decision column and the estimate block tailstop writes beside a test log.
+
+Both ``tailstop annotate`` and the demo books use this layout:
+
+* the **decision column**: a header in row 1, then one decision per row of the
+  log (PILOT, CONTINUE, STOP, PAST STOP; empty on a blank row);
+* the **estimate block**: two columns, labels and values, from row 1 down —
+  the rule's settings, where it stopped, the estimate with its bounds for the
+  probability and for the odds from the units up to the STOP (or from all
+  units while the rule has not stopped), the units the accuracy needs, and the
+  warnings that apply.
+
+Every figure is computed by calling the tailstop formula itself
+(``tailstop.sheet.FORMULAS``) with the arguments a spreadsheet would pass, so
+the values written headless are exactly what the live formulas show. In live
+mode a cell holds the formula with that value stored as its cached value; the
+rule's settings are then plain input cells that the formulas refer to, so a
+user with the add-in can change them. Array results are read element by
+element through ``INDEX(...)`` (LibreOffice recomputes array formulas on load,
+see docs/recalc-engine.md).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from openpyxl.cell.cell import Cell
+from openpyxl.formatting.rule import CellIsRule
+from openpyxl.styles import Font, PatternFill
+from openpyxl.utils.cell import get_column_letter
+
+from .. import cells
+from ..methods import METHOD_NAMES
+from ..notes import method_notes, note_lines
+from ..rule import MIN_PILOT
+from . import row_cells
+from .cached_values import set_formula
+from .cell_check import collector_paused, sheet_reference
+
+__all__ = [
+    "RulePlan",
+    "LogRange",
+    "LogProblem",
+    "LogAnalysis",
+    "BlockLayout",
+    "DECISION_HEADER",
+    "BLOCK_TITLE",
+    "LIVE_NOTE_LINES",
+    "read_log_range",
+    "sheet_reference",
+    "analyse_log",
+    "block_layout",
+    "write_decision_column",
+    "write_estimate_block",
+    "set_width",
+    "HEADER_FONT",
+    "HEADER_FILL",
+    "INPUT_FILL",
+    "TITLE_FONT",
+]
+
+DECISION_HEADER = "tailstop decision"
+BLOCK_TITLE = "tailstop estimate"
+# TAIL_METHOD_NOTES gives at most three warnings (fit, shape, units on a side) or one "no warnings" line
+LIVE_NOTE_LINES = 3
+CAUTION = ("Asymptotic method; the gamma methods assume a gamma model; units must be independent. The governing "
+           "standard and engineering judgment decide.")
+
+# Our look: a slate header with white text, sand-coloured input cells, a green STOP.
+HEADER_FONT = Font(bold=True, color="FFFFFF")
+HEADER_FILL = PatternFill("solid", fgColor="34495E")
+TITLE_FONT = Font(bold=True, size=12, color="34495E")
+LABEL_FONT = Font(bold=True, color="34495E")
+INPUT_FILL = PatternFill("solid", fgColor="FBEFD5")
+STOP_FILL = PatternFill("solid", fgColor="CDEBC5")
+WARNING_FONT = Font(color="9C3D10")
+PROBABILITY_FORMAT = "0.0000"
+ODDS_FORMAT = "0.0000"
+
+
+# --------------------------------------------------------------------------- the rule's settings
+
+
+@dataclass(frozen=True)
+class RulePlan:
+    """The settings of the stopping rule and of the estimate, checked.
+
+    Use ``RulePlan.checked(...)``: it validates with the same rules (and the
+    same messages) as the formulas.
+    """
+
+    threshold: float
+    accuracy: float
+    confidence: float
+    pilot: int
+    method: str = "pass-fail"
+    shape: float | None = None
+    check_every: int = 1
+
+    @classmethod
+    def checked(cls, threshold, accuracy, confidence, pilot, method=None, shape=None, check_every=None):
+        """A plan from user input; ``cells.InputError`` saying what to fix."""
+        name = cells.method_name(method, METHOD_NAMES)
+        shape_value = None
+        if name == "known-shape":
+            if cells.is_missing(shape):
+                raise cells.InputError("known-shape needs the gamma shape (--shape)")
+            shape_value = cells.positive(shape, "shape")
+        elif not cells.is_missing(shape):
+            raise cells.InputError(f"a shape is used by known-shape only, not by {name}")
+        every = 1 if cells.is_missing(check_every) else cells.whole_number(check_every, "check_every", minimum=1)
+        return cls(
+            threshold=cells.positive(threshold, "threshold"),
+            accuracy=cells.accuracy(accuracy),
+            confidence=cells.confidence(confidence),
+            pilot=cells.whole_number(pilot, "pilot", minimum=MIN_PILOT),
+            method=name,
+            shape=shape_value,
+            check_every=every,
+        )
+
+    def describe(self) -> str:
+        shape = f", shape {self.shape:g}" if self.shape is not None else ""
+        every = f", checked every {self.check_every} units" if self.check_every > 1 else ""
+        return (f"{self.method}{shape}: odds within a factor {self.accuracy:g} at {self.confidence * 100:g} % "
+                f"confidence, pilot {self.pilot}{every}")
+
+
+# --------------------------------------------------------------------------- where the log is
+
+
+@dataclass(frozen=True)
+class LogRange:
+    """One column of a sheet holding a test log: a header in row ``first_row - 1``, units below."""
+
+    sheet_title: str
+    column: int
+    first_row: int
+    last_row: int
+
+    @property
+    def letter(self) -> str:
+        return get_column_letter(self.column)
+
+    @property
+    def rows(self) -> int:
+        return self.last_row - self.first_row + 1
+
+    def reference(self, last_row=None, *, on_sheet=False) -> str:
+        """``$B$2:$B$141`` (or ``'Log'!$B$2:$B$141`` with ``on_sheet``)."""
+        last = self.last_row if last_row is None else last_row
+        text = f"${self.letter}${self.first_row}:${self.letter}${last}"
+        return f"{sheet_reference(self.sheet_title)}!{text}" if on_sheet else text
+
+    def growing_reference(self, row) -> str:
+        """``$B$2:B17``: the log down to ``row``, for a formula filled down."""
+        return f"${self.letter}${self.first_row}:{self.letter}{row}"
+
+    def address(self, row) -> str:
+        """``Log!B17`` as messages name a cell."""
+        return f"{sheet_reference(self.sheet_title)}!{self.letter}{row}"
+
+    def text(self) -> str:
+        return f"{sheet_reference(self.sheet_title)}!{self.letter}{self.first_row}:{self.letter}{self.last_row}"
+
+
+class LogProblem(ValueError):
+    """A cell of the log the method cannot use, named by its address."""
+
+
+def read_log_range(sheet, column, first_row=2):
+    """The log column of a loaded (not read-only) worksheet: its ``LogRange`` and its values.
+
+    Reads openpyxl's store of existing cells, so no empty cell is created.
+    The log ends at the last row of the column that holds a value.
+
+    Returns
+    -------
+    (LogRange, list)
+        The range, and the raw value of every row in it (None for blanks).
+    """
+    stored = sheet._cells
+    values = []
+    for row in range(first_row, sheet.max_row + 1):
+        cell = stored.get((row, column))
+        values.append(None if cell is None else cell._value)
+    while values and values[-1] is None:
+        values.pop()
+    last_row = first_row + len(values) - 1
+    return LogRange(sheet.title, column, first_row, last_row), values
+
+
+# --------------------------------------------------------------------------- the figures
+
+
+def _formula(name):
+    from ..sheet import FORMULAS
+
+    return FORMULAS[name]
+
+
+def _decision_column(column, arguments):
+    """STOP_DECISION_COLUMN's result.
+
+    Its body is called directly: it already returns plain text for every
+    row, and the formula wrapper's cell-by-cell conversion of a long log
+    would cost more than the decisions themselves. Errors become the same
+    ``#TAILSTOP!`` text the wrapper gives.
+    """
+    body = _formula("STOP_DECISION_COLUMN").tailstop_body
+    try:
+        return body(column, *arguments)
+    except (ValueError, ArithmeticError) as problem:
+        return f"{cells.ERROR_PREFIX} {problem}"
+
+
+def _as_range(values):
+    return [[value] for value in values]
+
+
+def _index(result, row, column):
+    """What ``IFERROR(INDEX(result,row,column),"")`` shows for a formula result."""
+    if isinstance(result, list):
+        try:
+            return result[row - 1][column - 1]
+        except IndexError:
+            return ""
+    return result if (row, column) == (1, 1) else ""
+
+
+def _odds(p):
+    """What ``IFERROR(p/(1-p),"")`` shows."""
+    if isinstance(p, (int, float)) and not isinstance(p, bool) and p != 1:
+        return p / (1 - p)
+    return ""
+
+
+@dataclass(frozen=True)
+class LogAnalysis:
+    """Everything the decision column and the estimate block show, computed through the formulas.
+
+    Attributes
+    ----------
+    decisions : list of str
+        One per row of the log ('' on a blank row): STOP_DECISION_COLUMN.
+    stop_offset : int or None
+        Row of the STOP counted from 0 at the log's first row; None if the rule has not stopped.
+    rows_used : int
+        Log rows the estimate uses: down to the STOP, or all of them.
+    units, units_used : int
+        Units in the whole log, and in the rows used.
+    filled_used : int
+        Non-empty cells in the rows used (what COUNTA counts; equals ``units_used``
+        unless a cell holds only spaces).
+    last_decision : str
+        STOP_DECISION over the whole log.
+    figures : dict
+        name -> value for the estimate, bounds, odds and units needed (a number or a
+        ``#TAILSTOP!`` text).
+    notes : list of str
+        Warnings with the accuracy check (``notes.method_notes``), for values mode.
+    live_notes : list of str
+        TAIL_METHOD_NOTES lines, the cached values of the live block.
+    """
+
+    plan: RulePlan
+    decisions: list
+    stop_offset: int | None
+    rows_used: int
+    units: int
+    units_used: int
+    filled_used: int
+    last_decision: str
+    figures: dict
+    notes: list
+    live_notes: list = field(default_factory=list)
+
+    @property
+    def stopped(self) -> bool:
+        return self.stop_offset is not None
+
+
+def analyse_log(log: LogRange, values, plan: RulePlan) -> LogAnalysis:
+    """Decisions, estimate and warnings for a log column.
+
+    Raises
+    ------
+    LogProblem
+        For the first cell the method cannot use, e.g. "Log!B17 holds text 'n/a'",
+        or a log with fewer units than two.
+    """
+    with collector_paused():
+        return _analyse(log, values, plan)
+
+
+def _analyse(log, values, plan):
+    column = _as_range(values)
+    _refuse_bad_cells(log, column, plan)
+    arguments = (plan.threshold, plan.accuracy, plan.confidence, plan.pilot, plan.method, plan.shape,
+                 plan.check_every)
+    result = _decision_column(column, arguments)
+    _refuse_text(result, log)
+    decisions = [row[0] for row in result]
+    decisions += [""] * (len(values) - len(decisions))
+    stop_offset = decisions.index("STOP") if "STOP" in decisions else None
+    rows_used = len(values) if stop_offset is None else stop_offset + 1
+    used = _as_range(values[:rows_used])
+    reading = cells.read_log_cells(column).for_method(plan.method, plan.threshold)
+    units_used = int((reading.rows < rows_used).sum())
+    if units_used < MIN_PILOT:
+        raise LogProblem(f"{log.text()} holds {units_used} unit{'s' if units_used != 1 else ''}; "
+                         f"an estimate needs at least {MIN_PILOT}")
+    last_decision = _formula("STOP_DECISION")(column, *arguments)
+    figures = _figures(used, column, plan)
+    survivors = reading.survivors[: units_used] if reading.survivors[: units_used].any() else None
+    try:
+        notes = note_lines(method_notes(reading.values[:units_used], plan.threshold, plan.method, plan.shape,
+                                        accuracy=plan.accuracy, confidence=plan.confidence, survivors=survivors))
+    except ValueError as problem:  # the estimate itself shows the same problem as #TAILSTOP! text
+        notes = [str(problem)]
+    live = _formula("TAIL_METHOD_NOTES")(used, plan.threshold, plan.method, plan.shape)
+    live_notes = [_index(live, line, 1) for line in range(1, LIVE_NOTE_LINES + 1)]
+    filled = sum(1 for value in values[:rows_used] if value is not None and value != "")
+    return LogAnalysis(plan, decisions, stop_offset, rows_used, int(reading.values.size), units_used, filled,
+                       last_decision, figures, notes, live_notes)
+
+
+def _refuse_bad_cells(log, column, plan):
+    reading = cells.read_log_cells(column, "log", single_column=True)
+    if reading.problem is None:
+        reading = reading.for_method(plan.method, plan.threshold)
+    if reading.problem is not None:
+        prefix = f"log: row {reading.problem_row + 1} "
+        reason = reading.problem[len(prefix):] if reading.problem.startswith(prefix) else reading.problem
+        raise LogProblem(f"{log.address(log.first_row + reading.problem_row)} {reason}")
+
+
+def _refuse_text(result, log):
+    """A formula that answered with its #TAILSTOP! text about the arguments: refuse with that text."""
+    if isinstance(result, str):
+        raise LogProblem(f"{log.text()}: {result.removeprefix(cells.ERROR_PREFIX).strip()}")
+
+
+def _figures(used, column, plan):
+    estimate = _formula("TAIL_PROB_EST")(used, plan.threshold, plan.method, plan.shape)
+    bounds = _formula("TAIL_PROB_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape)
+    odds_bounds = _formula("TAIL_ODDS_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape)
+    needed = _formula("UNITS_NEEDED_NOW")(column, plan.threshold, plan.accuracy, plan.confidence, plan.method,
+                                          plan.shape)
+    return {
+        "estimate": estimate,
+        "p_low": _index(bounds, 1, 1),
+        "p_high": _index(bounds, 1, 2),
+        "odds": _odds(estimate),
+        "odds_low": _index(odds_bounds, 1, 1),
+        "odds_high": _index(odds_bounds, 1, 2),
+        "units_needed": needed,
+    }
+
+
+# --------------------------------------------------------------------------- the estimate block
+
+
+_INPUTS = (
+    # key, label, plan attribute
+    ("threshold", "Threshold{unit}", "threshold"),
+    ("method", "Method", "method"),
+    ("shape", "Gamma shape (known-shape only)", "shape"),
+    ("accuracy", "Accuracy d: odds within a factor d", "accuracy"),
+    ("confidence", "Confidence", "confidence"),
+    ("pilot", "Pilot (units)", "pilot"),
+    ("check_every", "Rule checked every (units)", "check_every"),
+)
+_OUTPUTS = (
+    # key, label, number format
+    ("last_decision", "Decision after the last row", None),
+    ("rows_used", "Log rows used (down to the STOP)", "0"),
+    ("units_used", "Units used, N", "0"),
+    ("estimate", "Estimate of p = P(life > threshold)", PROBABILITY_FORMAT),
+    ("p_low", "p, lower bound", PROBABILITY_FORMAT),
+    ("p_high", "p, upper bound", PROBABILITY_FORMAT),
+    ("odds", "Odds p/(1-p)", ODDS_FORMAT),
+    ("odds_low", "Odds, lower bound (odds/d)", ODDS_FORMAT),
+    ("odds_high", "Odds, upper bound (odds*d)", ODDS_FORMAT),
+    ("units_needed", "Units the accuracy needs, by all units so far", "0"),
+)
+
+
+@dataclass(frozen=True)
+class BlockLayout:
+    """Where the estimate block's cells are.
+
+    Attributes
+    ----------
+    top_row, label_column : int
+        The block's top-left cell (the title).
+    cells : dict
+        key -> coordinate of the value cell ('threshold', 'estimate', ...).
+    note_rows : list of int
+        Rows of the warning lines.
+    last_row : int
+    """
+
+    top_row: int
+    label_column: int
+    cells: dict
+    note_rows: list
+    last_row: int
+
+    @property
+    def value_column(self) -> int:
+        return self.label_column + 1
+
+    def absolute(self, key) -> str:
+        """``$H$3`` for a value cell."""
+        coordinate = self.cells[key]
+        letters = "".join(ch for ch in coordinate if ch.isalpha())
+        return f"${letters}${coordinate[len(letters):]}"
+
+    def reference(self) -> str:
+        last = get_column_letter(self.value_column)
+        return f"{get_column_letter(self.label_column)}{self.top_row}:{last}{self.last_row}"
+
+
+def block_layout(top_row, label_column, note_lines_count) -> BlockLayout:
+    """The coordinates of an estimate block whose title is at (top_row, label_column)."""
+    value_letter = get_column_letter(label_column + 1)
+    row = top_row + 2  # title, then the log range
+    coordinates = {"log": f"{value_letter}{top_row + 1}"}
+    for key, _, _ in _INPUTS:
+        coordinates[key] = f"{value_letter}{row}"
+        row += 1
+    row += 1  # a blank row between the settings and the results
+    for key, _, _ in _OUTPUTS:
+        coordinates[key] = f"{value_letter}{row}"
+        row += 1
+    note_rows = list(range(row, row + max(note_lines_count, 1)))
+    caution_row = note_rows[-1] + 1
+    coordinates["caution"] = f"{get_column_letter(label_column)}{caution_row}"
+    return BlockLayout(top_row, label_column, coordinates, note_rows, caution_row)
+
+
+def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
+    """Live formulas of the block's results, by key."""
+    a = layout.absolute
+    decisions = f"${get_column_letter(decision_column)}${log.first_row}:" \
+                f"${get_column_letter(decision_column)}${log.last_row}"
+    whole = log.reference()
+    used = f"INDEX({whole},1):INDEX({whole},{a('rows_used')})"
+    method_args = f"{a('method')},{a('shape')}"
+    rule = f"{a('threshold')},{a('accuracy')},{a('confidence')},{a('pilot')},{method_args},{a('check_every')}"
+    return {
+        "last_decision": f"=STOP_DECISION({whole},{rule})",
+        "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),ROWS({whole}))',
+        "units_used": f"=COUNTA({used})",
+        "estimate": f"=TAIL_PROB_EST({used},{a('threshold')},{method_args})",
+        "p_low": f'=IFERROR(INDEX(TAIL_PROB_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,1),"")',
+        "p_high": f'=IFERROR(INDEX(TAIL_PROB_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,2),"")',
+        "odds": f'=IFERROR({a("estimate")}/(1-{a("estimate")}),"")',
+        "odds_low": f'=IFERROR(INDEX(TAIL_ODDS_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,1),"")',
+        "odds_high": f'=IFERROR(INDEX(TAIL_ODDS_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,2),"")',
+        "units_needed": f"=UNITS_NEEDED_NOW({whole},{a('threshold')},{a('accuracy')},{a('confidence')},{method_args})",
+        "note": lambda line: f'=IFERROR(INDEX(TAIL_METHOD_NOTES({used},{a("threshold")},{method_args}),{line},1),"")',
+    }
+
+
+def _output_values(analysis: LogAnalysis, live: bool):
+    values = dict(analysis.figures)
+    values["last_decision"] = analysis.last_decision
+    values["rows_used"] = analysis.rows_used
+    values["units_used"] = analysis.filled_used if live else analysis.units_used
+    return values
+
+
+def write_estimate_block(sheet, layout: BlockLayout, log: LogRange, decision_column: int, analysis: LogAnalysis,
+                         *, live: bool, cached: dict, unit: str = "", source: str = "") -> BlockLayout:
+    """Write the estimate block at ``layout``; live formulas record their values in ``cached``."""
+    label_letter = get_column_letter(layout.label_column)
+    value_letter = get_column_letter(layout.value_column)
+    title = sheet[f"{label_letter}{layout.top_row}"]
+    title.value, title.font = BLOCK_TITLE, TITLE_FONT
+    mode = sheet[f"{value_letter}{layout.top_row}"]
+    mode.value = "live tailstop formulas" if live else (source or "values computed by tailstop")
+    mode.font = Font(italic=True, color="5D6D7E")
+    _label(sheet, layout.cells["log"], "Log column")
+    sheet[layout.cells["log"]] = log.text()
+    plan = analysis.plan
+    unit_text = f" ({unit})" if unit else ""
+    for key, label, attribute in _INPUTS:
+        _label(sheet, layout.cells[key], label.format(unit=unit_text))
+        cell = sheet[layout.cells[key]]
+        cell.value = getattr(plan, attribute)
+        cell.fill = INPUT_FILL
+    formulas = _block_formulas(layout, log, decision_column)
+    values = _output_values(analysis, live)
+    for key, label, number_format in _OUTPUTS:
+        _label(sheet, layout.cells[key], label)
+        _put(sheet, layout.cells[key], formulas[key] if live else None, values[key], cached)
+        if number_format:
+            sheet[layout.cells[key]].number_format = number_format
+    lines = analysis.live_notes if live else analysis.notes
+    for line, row in enumerate(layout.note_rows, start=1):
+        if line == 1:
+            sheet[f"{label_letter}{row}"] = "Warnings"
+            sheet[f"{label_letter}{row}"].font = LABEL_FONT
+        coordinate = f"{value_letter}{row}"
+        text = lines[line - 1] if line <= len(lines) else ""
+        _put(sheet, coordinate, formulas["note"](line) if live else None, text, cached)
+        sheet[coordinate].font = WARNING_FONT
+    caution = sheet[layout.cells["caution"]]
+    caution.value = CAUTION
+    caution.font = Font(italic=True, size=9, color="5D6D7E")
+    return layout
+
+
+def _label(sheet, value_coordinate, text):
+    cell = sheet[value_coordinate]
+    label = sheet.cell(cell.row, cell.column - 1)
+    label.value, label.font = text, LABEL_FONT
+
+
+def _put(sheet, coordinate, formula, value, cached):
+    if formula is None:
+        if isinstance(value, float):
+            value = float("%.16g" % value)  # what a spreadsheet file stores; no 17th digit to carry
+        sheet[coordinate] = None if value == "" else value
+    else:
+        set_formula(sheet, coordinate, formula, value, cached)
+
+
+# --------------------------------------------------------------------------- the decision column
+
+
+def write_decision_column(sheet, log: LogRange, column: int, analysis: LogAnalysis, *, live: bool, cached: dict,
+                          layout: BlockLayout | None = None, header: str = DECISION_HEADER, as_markup=()):
+    """Write the header and one decision per log row into ``column``.
+
+    Live mode fills ``=STOP_DECISION($B$2:B<row>, <the block's settings>)`` down
+    (``layout`` gives the settings' cells); values mode writes the decisions.
+    The STOP cell is highlighted by a conditional format, so it follows a live
+    recalculation.
+
+    Rows in ``as_markup`` are not put into the book: their cells come back as
+    ``{row: markup}`` for ``row_cells.append_to_sheet`` (rows that are written
+    anyway because they hold a log value; see ``row_cells``).
+
+    Returns
+    -------
+    dict
+        row -> (cell markup, canonical content) for the rows in ``as_markup``.
+    """
+    letter = get_column_letter(column)
+    head = sheet.cell(log.first_row - 1, column, header)
+    head.font, head.fill = HEADER_FONT, HEADER_FILL
+    rule = None
+    if live:
+        a = layout.absolute
+        rule = (f"{a('threshold')},{a('accuracy')},{a('confidence')},{a('pilot')},{a('method')},{a('shape')},"
+                f"{a('check_every')}")
+    as_markup = set(as_markup)
+    markup = {}
+    texts = []
+    for offset, decision in enumerate(analysis.decisions):
+        row = log.first_row + offset
+        coordinate = f"{letter}{row}"
+        if live:
+            formula = f"=STOP_DECISION({log.growing_reference(row)},{rule})"
+            if row in as_markup:
+                markup[row] = (row_cells.formula_cell(coordinate, formula, decision), ("f", formula))
+            else:
+                set_formula(sheet, coordinate, formula, decision, cached)
+        elif row in as_markup:
+            if decision:
+                markup[row] = (row_cells.text_cell(coordinate, decision), decision)
+            texts.append("")
+            continue
+        texts.append(decision)
+    if not live:
+        _write_texts(sheet, column, log.first_row, texts)
+    if log.rows > 0:
+        target = f"{letter}{log.first_row}:{letter}{log.last_row}"
+        sheet.conditional_formatting.add(target, CellIsRule(operator="equal", formula=['"STOP"'], fill=STOP_FILL,
+                                                            font=Font(bold=True)))
+    return markup
+
+
+def _write_texts(sheet, column, first_row, texts):
+    """Put plain texts down a column of empty cells ('' leaves a cell empty).
+
+    Builds the cells directly, as openpyxl's own reader does: a long log has
+    a hundred thousand of them, and ``sheet.cell`` costs twice as much each.
+    """
+    stored = sheet._cells
+    for offset, text in enumerate(texts):
+        if text:
+            row = first_row + offset
+            if (row, column) in stored:
+                raise ValueError(f"{get_column_letter(column)}{row} is not empty")
+            cell = Cell(sheet, row=row, column=column)
+            cell._value, cell.data_type = text, "s"
+            stored[(row, column)] = cell
+
+
+def column_is_free_of_widths(sheet, column) -> bool:
+    """True when no existing column-width entry covers ``column`` (so setting one cannot overlap)."""
+    for dimension in sheet.column_dimensions.values():
+        low, high = dimension.min or 0, dimension.max or 0
+        if low <= column <= high:
+            return False
+    return True
+
+
+def set_width(sheet, column, width):
+    """Set a column's width unless the sheet already has a width entry covering it."""
+    if column_is_free_of_widths(sheet, column):
+        sheet.column_dimensions[get_column_letter(column)].width = width
