@@ -33,6 +33,7 @@ def build_parser():
 
 
 def _load_commands():
+    from . import annotate  # noqa: F401
     from . import demo  # noqa: F401
     from . import plan_command  # noqa: F401
     from . import recalc_command  # noqa: F401

@@ -1,0 +1,521 @@
+"""tailstop annotate: the decision column and the estimate block on an existing log, and that nothing is lost."""
+from __future__ import annotations
+
+import datetime as dt
+import io
+import math
+import zipfile
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from openpyxl.comments import Comment
+from openpyxl.worksheet.formula import ArrayFormula
+from scipy import stats
+
+import tailstop.annotate as annotate_module
+from tailstop.annotate import AnnotateRefused, annotate, default_output
+from tailstop.cli import main
+from tailstop.workbooks import cell_check
+from tailstop.workbooks.cached_values import save_with_cached_values
+from tailstop.workbooks.log_layout import DECISION_HEADER, RulePlan
+from tailstop.workbooks.recalc import evaluate_workbook
+
+THRESHOLD, ACCURACY, CONFIDENCE, PILOT = 1500.0, 1.5, 0.95, 10
+LOG_SHEET = "Bench log"
+
+
+def bench_lifetimes(units=220, seed=11):
+    """Seeded gamma draws rounded like a bench log (input data only, never a check value)."""
+    rng = np.random.default_rng(seed)
+    return [float(v) for v in np.round(rng.gamma(2.4, 520.0, size=units), 1)]
+
+
+def rich_log(path, lifetimes=None):
+    """A log with formulas, dates, times, merged cells, comments, odd numbers and three sheets.
+
+    The log sheet is not the first one but is the active one.
+    """
+    lifetimes = bench_lifetimes() if lifetimes is None else lifetimes
+    book = openpyxl.Workbook()
+    notes = book.active
+    notes.title = "Notes"
+    notes["A1"] = "Bench notes"
+    notes["A2"] = "  leading spaces & <angle> \"quotes\""
+    notes["A3"] = 0.1 + 0.2                      # needs 17 digits: openpyxl alone would write 0.3
+    notes["A4"] = 12345678901234567891           # beyond 2**53
+    notes["A5"] = True
+    notes["A6"] = "#N/A"
+    notes["A7"] = dt.time(8, 30)
+    notes["A8"] = dt.date(2026, 1, 5)
+    notes["A9"] = "line one\nline two"
+    notes["B1"] = -0.0
+    notes["B2"] = 1e-300
+    notes["B3"] = "=A3*2"
+    notes.merge_cells("D1:E3")
+    notes["D1"] = "merged title"
+    log = book.create_sheet(LOG_SHEET)
+    log.append(["Unit", "Rig", "Started", "Cycles to leak (kcycles)", "Twice", "Remark"])
+    start = dt.datetime(2026, 1, 5, 8, 0)
+    for unit, value in enumerate(lifetimes, start=1):
+        row = unit + 1
+        remark = "seat & spring <replaced>" if unit % 37 == 0 else None
+        log.append([unit, f"rig {unit % 3 + 1}", start + dt.timedelta(minutes=7 * unit, seconds=0.25 * unit), value,
+                    f"=D{row}*2", remark])
+    log["C2"].number_format = "yyyy-mm-dd hh:mm:ss.000"
+    log.merge_cells("H1:I2")
+    log["H1"] = "Rig A (merged)"
+    log["H1"].comment = Comment("set up by the bench team", "bench")
+    summary = book.create_sheet("Summary")
+    summary["A1"] = "Mean cycles"
+    summary["B1"] = f"=AVERAGE('{LOG_SHEET}'!D2:D{len(lifetimes) + 1})"
+    summary["A2"] = "Share"
+    summary["B2"] = 0.25
+    summary["B2"].number_format = "0.0%"
+    summary["B4"] = ArrayFormula("B4:B5", f"='{LOG_SHEET}'!D2:D3*2")
+    summary["D1"] = dt.timedelta(hours=30, minutes=5)
+    summary["D1"].number_format = "[h]:mm:ss"
+    book.active = 1
+    # openpyxl alone writes 16 digits; the cached-value writer stores these two exactly
+    save_with_cached_values(book, path, {("Notes", "A3"): 0.1 + 0.2, ("Notes", "A4"): 12345678901234567891})
+    return path
+
+
+def all_cells(path, data_only=False):
+    """Every non-empty cell of every sheet, as openpyxl reads it: {sheet: {coordinate: value}}."""
+    book = openpyxl.load_workbook(path, data_only=data_only)
+    found = {}
+    for sheet in book.worksheets:
+        cells = {}
+        for row in sheet.iter_rows():
+            for cell in row:
+                value = cell.value
+                if isinstance(value, ArrayFormula):
+                    value = ("array", value.ref, value.text)
+                if value is not None and value != "":
+                    cells[cell.coordinate] = (value, cell.data_type)
+        found[sheet.title] = cells
+    return found
+
+
+def plan(**changes):
+    settings_ = dict(threshold=THRESHOLD, accuracy=ACCURACY, confidence=CONFIDENCE, pilot=PILOT)
+    settings_.update(changes)
+    return RulePlan.checked(**settings_)
+
+
+def rule_stop(lifetimes, threshold=THRESHOLD, accuracy=ACCURACY, confidence=CONFIDENCE, pilot=PILOT):
+    """The pass-fail stopping rule of METHOD.md §5 written out plainly: N, or None."""
+    # check value: METHOD.md §5 with the regularised p~ = (S + 1/2)/(n + 1); z from scipy.stats.norm
+    z = stats.norm.ppf(1 - (1 - confidence) / 2)
+    beyond = 0
+    for n, value in enumerate(lifetimes, start=1):
+        beyond += value > threshold
+        if n < pilot or beyond in (0, n):
+            continue
+        p_tilde = (beyond + 0.5) / (n + 1)
+        if n >= (z / math.log(accuracy)) ** 2 / (p_tilde * (1 - p_tilde)):
+            return n
+    return None
+
+
+@pytest.fixture
+def log_path(tmp_path):
+    return rich_log(tmp_path / "bench.xlsx")
+
+
+# --------------------------------------------------------------------------- what it writes
+
+
+def test_decision_column_and_block_follow_the_rule_and_the_interval(log_path):
+    lifetimes = bench_lifetimes()
+    result = annotate(log_path, column="Cycles to leak (kcycles)", plan=plan())
+    assert result.path == default_output(log_path) == log_path.with_name("bench-tailstop.xlsx")
+    sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
+    stop = rule_stop(lifetimes)
+    assert stop is not None
+    assert result.decision_column == 10  # after the merged H1:I2, the sheet's last column
+    assert sheet.cell(1, 10).value == DECISION_HEADER
+    decisions = [sheet.cell(row, 10).value for row in range(2, len(lifetimes) + 2)]
+    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (
+        len(lifetimes) - stop)
+    assert decisions == expected
+    block = {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 40)}
+    assert block["Units used, N"] == stop
+    assert block["Log rows used (down to the STOP)"] == stop
+    # check value: the pass-fail estimate is the share of units beyond the threshold (counted here)
+    share = sum(v > THRESHOLD for v in lifetimes[:stop]) / stop
+    assert block["Estimate of p = P(life > threshold)"] == pytest.approx(share, rel=1e-15)
+    # check value: METHOD.md §2, the fixed-accuracy interval [q/d, q d] and its probability-scale image
+    odds = share / (1 - share)
+    assert block["Odds p/(1-p)"] == pytest.approx(odds, rel=1e-15)
+    assert block["Odds, lower bound (odds/d)"] == pytest.approx(odds / ACCURACY, rel=1e-14)
+    assert block["Odds, upper bound (odds*d)"] == pytest.approx(odds * ACCURACY, rel=1e-14)
+    assert block["p, lower bound"] == pytest.approx(odds / (ACCURACY + odds), rel=1e-14)
+    assert block["p, upper bound"] == pytest.approx(ACCURACY * odds / (1 + ACCURACY * odds), rel=1e-14)
+    assert block["Decision after the last row"] == "PAST STOP"
+    assert block["Threshold"] == THRESHOLD and block["Method"] == "pass-fail" and block["Pilot (units)"] == PILOT
+
+
+def test_every_pre_existing_cell_keeps_its_value_and_formula(log_path):
+    before_formulas, before_values = all_cells(log_path), all_cells(log_path, data_only=True)
+    result = annotate(log_path, column="D", plan=plan())
+    after = all_cells(result.path)
+    assert list(after) == list(before_formulas)  # same sheets, same order
+    for title, cells in before_formulas.items():
+        for coordinate, content in cells.items():
+            assert after[title].get(coordinate) == content, f"{title}!{coordinate}"
+        added = set(after[title]) - set(cells)
+        if title != LOG_SHEET:
+            assert not added, title
+        else:
+            columns = {openpyxl.utils.cell.coordinate_from_string(c)[0] for c in added}
+            assert columns <= {"J", "L", "M"}
+    # the values openpyxl reads without formulas (dates, times, numbers) too
+    after_values = all_cells(result.path, data_only=True)
+    for title, cells in before_values.items():
+        for coordinate, content in cells.items():
+            if content[1] != "f":
+                assert after_values[title][coordinate] == content, f"{title}!{coordinate}"
+    notes = openpyxl.load_workbook(result.path)["Notes"]
+    assert notes["A3"].value == 0.1 + 0.2 and notes["A4"].value == 12345678901234567891
+    assert [r.coord for r in notes.merged_cells.ranges] == ["D1:E3"]
+    assert openpyxl.load_workbook(result.path)[LOG_SHEET]["H1"].comment.text == "set up by the bench team"
+    assert result.cells_checked == sum(len(cells) for cells in before_formulas.values())
+
+
+def test_live_mode_writes_formulas_whose_cached_values_the_engine_reproduces(log_path):
+    result = annotate(log_path, column="Cycles to leak (kcycles)", plan=plan(), live=True,
+                      out=log_path.with_name("live.xlsx"))
+    formulas = openpyxl.load_workbook(result.path)[LOG_SHEET]
+    cached = openpyxl.load_workbook(result.path, data_only=True)[LOG_SHEET]
+    assert formulas["J2"].value == "=STOP_DECISION($D$2:D2,$M$3,$M$6,$M$7,$M$8,$M$4,$M$5,$M$9)"
+    assert formulas["M3"].value == THRESHOLD  # the settings are plain inputs
+    computed = evaluate_workbook(result.path)
+    checked = 0
+    for row in formulas.iter_rows(min_col=10, max_col=13):
+        for cell in row:
+            if isinstance(cell.value, str) and cell.value.startswith("="):
+                stored = cached[cell.coordinate].value
+                engine = computed[(LOG_SHEET.upper(), cell.coordinate)]
+                if isinstance(stored, float):
+                    assert engine == pytest.approx(stored, rel=1e-12), cell.coordinate
+                else:
+                    assert (engine or None) == (stored or None), cell.coordinate
+                checked += 1
+    assert checked > len(bench_lifetimes())
+
+
+def test_values_mode_matches_live_mode(log_path):
+    values = annotate(log_path, column="D", plan=plan(), out=log_path.with_name("values.xlsx"))
+    live = annotate(log_path, column="D", plan=plan(), live=True, out=log_path.with_name("live.xlsx"))
+    plain = openpyxl.load_workbook(values.path)[LOG_SHEET]
+    cached = openpyxl.load_workbook(live.path, data_only=True)[LOG_SHEET]
+    for row in range(2, len(bench_lifetimes()) + 2):
+        assert plain.cell(row, 10).value == cached.cell(row, 10).value
+    for row in range(11, 21):
+        value, stored = plain.cell(row, 13).value, cached.cell(row, 13).value
+        assert value == (pytest.approx(stored, rel=1e-15) if isinstance(stored, float) else stored), row
+
+
+def test_gamma_methods_and_check_interval(tmp_path):
+    lifetimes = bench_lifetimes(160)
+    path = rich_log(tmp_path / "bench.xlsx", lifetimes)
+    result = annotate(path, column="D", plan=plan(method="known-shape", shape=2.4, check_every=4))
+    sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
+    decisions = [sheet.cell(row, 10).value for row in range(2, len(lifetimes) + 2)]
+    stop = decisions.index("STOP") + 1
+    assert (stop - PILOT) % 4 == 0  # the rule is consulted at m, m + k, m + 2k, ...
+    block = {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 40)}
+    # check value: known-shape estimate Q(a, c/s) with s = mean/a, by scipy.stats.gamma
+    mean = float(np.mean(lifetimes[:stop]))
+    expected = stats.gamma.sf(THRESHOLD, 2.4, scale=mean / 2.4)
+    assert block["Estimate of p = P(life > threshold)"] == pytest.approx(expected, rel=1e-12)
+    assert block["Gamma shape (known-shape only)"] == 2.4
+
+
+def test_a_log_that_has_not_stopped_says_so(tmp_path, capsys):
+    path = rich_log(tmp_path / "short.xlsx", bench_lifetimes(30))
+    code = main(["annotate", str(path), "--column", "D", "--threshold", "1500", "--accuracy", "1.5",
+                 "--pilot", "10"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "the rule has not stopped after 30 units" in out
+    assert "warning: odds within a factor 1.5 at 95 % confidence need about" in out
+    sheet = openpyxl.load_workbook(default_output(path))[LOG_SHEET]
+    assert sheet["J31"].value == "CONTINUE"
+
+
+def test_blank_rows_and_survivors(tmp_path):
+    lifetimes = bench_lifetimes(200)
+    lifetimes[20] = None
+    lifetimes[40] = "1500+"  # taken off at the limit without failing: counts as beyond it (pass-fail)
+    path = rich_log(tmp_path / "gaps.xlsx", lifetimes)
+    result = annotate(path, column="D", plan=plan())
+    sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
+    assert sheet["J22"].value is None  # a blank row is not a unit
+    values = [v for v in lifetimes if v is not None]
+    numbers = [THRESHOLD + 1 if v == "1500+" else v for v in values]
+    stop = rule_stop(numbers)
+    decisions = [sheet.cell(row, 10).value for row in range(2, len(lifetimes) + 2)]
+    assert decisions.index("STOP") == stop  # one blank row above it: rows = units + 1
+    assert result.analysis.units_used == stop
+
+
+# --------------------------------------------------------------------------- command line and refusals
+
+
+def run_cli(capsys, *arguments):
+    code = main(["annotate", *map(str, arguments)])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def test_command_line_prints_a_summary(log_path, capsys):
+    code, out, err = run_cli(capsys, log_path, "--column", "Cycles to leak (kcycles)", "--threshold", 1500,
+                             "--accuracy", 1.5, "--pilot", 10)
+    assert code == 0 and err == ""
+    assert f"Annotated 'Bench log'!D2:D{len(bench_lifetimes()) + 1}" in out
+    assert "decision: STOP at row" in out
+    assert "estimate: P(life > 1500) =" in out
+    assert "kept their values and formulas" in out
+
+
+def test_the_first_bad_cell_is_named_by_its_address(tmp_path, capsys):
+    lifetimes = bench_lifetimes(60)
+    lifetimes[15] = "n/a"
+    path = rich_log(tmp_path / "bad.xlsx", lifetimes)
+    code, out, err = run_cli(capsys, path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10)
+    assert code == 1 and out == ""
+    assert err.strip() == "tailstop annotate: 'Bench log'!D17 holds text 'n/a'"
+    assert not default_output(path).exists()
+
+
+@pytest.mark.parametrize("value, reason", [
+    (dt.datetime(2026, 1, 5), "holds a date or time, not a number of hours or cycles"),
+    (0, "holds 0; lifetimes must be > 0"),
+    ("1200+", "marks a survivor taken off at 1200, below the threshold 1500"),
+])
+def test_cells_the_method_cannot_use(tmp_path, capsys, value, reason):
+    lifetimes = bench_lifetimes(40)
+    lifetimes[5] = value
+    path = rich_log(tmp_path / "bad.xlsx", lifetimes)
+    code, _, err = run_cli(capsys, path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10)
+    assert code == 1
+    assert err.startswith(f"tailstop annotate: 'Bench log'!D7 {reason}")
+    assert "Traceback" not in err
+
+
+@pytest.mark.parametrize("arguments, message", [
+    (["--column", "Z"], "'Bench log'!Z2 and the rows below are empty"),
+    (["--column", "Lifetime"], "no column 'Lifetime'"),
+    (["--column", "D", "--sheet", "Log"], "has no sheet 'Log'; its sheets are 'Notes', 'Bench log', 'Summary'"),
+    (["--column", "A", "--sheet", "Notes"], "Notes!A2 holds text '  leading spaces ...'"),
+    (["--column", "D", "--method", "known-shape"], "known-shape needs the gamma shape (--shape)"),
+    (["--column", "D", "--confidence", "95"], "for 95 % enter 0.95"),
+    (["--column", "D", "--no-backup"], "--no-backup applies to --in-place only"),
+    (["--column", "D", "--out", "x.csv"], "give a name ending in .xlsx"),
+])
+def test_bad_requests_are_refused_with_a_message(log_path, capsys, arguments, message):
+    base = ["--threshold", 1500, "--accuracy", 1.5, "--pilot", 10]
+    code, out, err = run_cli(capsys, log_path, *base, *arguments)
+    assert code == 1 and out == ""
+    assert message in err
+    assert "Traceback" not in err
+
+
+def test_a_numeric_first_row_is_not_taken_for_a_header(tmp_path, capsys):
+    book = openpyxl.Workbook()
+    for value in bench_lifetimes(30):
+        book.active.append([value])
+    book.save(tmp_path / "noheader.xlsx")
+    code, _, err = run_cli(capsys, tmp_path / "noheader.xlsx", "--column", "A", "--threshold", 1500,
+                           "--accuracy", 1.5, "--pilot", 10)
+    assert code == 1 and "row 1 must hold the column's header" in err
+
+
+def test_never_overwrites_and_in_place_keeps_a_backup(log_path, capsys):
+    arguments = [log_path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10]
+    assert run_cli(capsys, *arguments)[0] == 0
+    first = default_output(log_path).read_bytes()
+    code, _, err = run_cli(capsys, *arguments)
+    assert code == 1 and "exists; choose another name with --out" in err
+    assert default_output(log_path).read_bytes() == first
+    original = log_path.read_bytes()
+    code, out, _ = run_cli(capsys, *arguments, "--in-place")
+    assert code == 0 and "backup of the original" in out
+    assert log_path.with_name("bench.backup.xlsx").read_bytes() == original
+    assert openpyxl.load_workbook(log_path)[LOG_SHEET]["J1"].value == DECISION_HEADER
+
+
+def test_in_place_without_backup(log_path, capsys):
+    code, _, _ = run_cli(capsys, log_path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10,
+                         "--in-place", "--no-backup")
+    assert code == 0
+    assert not log_path.with_name("bench.backup.xlsx").exists()
+
+
+def with_macros(path):
+    """The book with a VBA project part added, which openpyxl would drop on save."""
+    source = zipfile.ZipFile(path).infolist()
+    data = {info.filename: zipfile.ZipFile(path).read(info) for info in source}
+    types = data["[Content_Types].xml"].decode()
+    data["[Content_Types].xml"] = types.replace(
+        "</Types>", '<Override PartName="/xl/vbaProject.bin" ContentType="application/vnd.ms-office.vbaProject"/>'
+        "</Types>").encode()
+    data["xl/vbaProject.bin"] = b"\xd0\xcf\x11\xe0not really a macro project"
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
+        for name, content in data.items():
+            archive.writestr(name, content)
+    return path
+
+
+def test_content_openpyxl_would_drop_is_refused_unless_allowed(log_path, capsys):
+    with_macros(log_path)
+    arguments = [log_path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10]
+    code, _, err = run_cli(capsys, *arguments)
+    assert code == 1
+    assert "would lose" in err and "VBA macros" in err and "--allow-lossy" in err
+    assert not default_output(log_path).exists()
+    code, out, _ = run_cli(capsys, *arguments, "--allow-lossy")
+    assert code == 0 and "given up (--allow-lossy): VBA macros" in out
+
+
+def hide_value_under_merge(path):
+    """Put a value into a cell covered by a merged range, as LibreOffice can keep one."""
+    with zipfile.ZipFile(path) as archive:
+        data = {info.filename: archive.read(info) for info in archive.infolist()}
+    part = "xl/worksheets/sheet1.xml"  # the Notes sheet, merged D1:E3
+    xml = data[part].decode()
+    assert '<c r="D1"' in xml
+    xml = xml.replace("</row>", '<c r="E2" t="inlineStr"><is><t>hidden note</t></is></c></row>', 2)
+    xml = xml.replace('<c r="E2" t="inlineStr"><is><t>hidden note</t></is></c></row>', "</row>", 1)
+    data[part] = xml.encode()
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
+        for name, content in data.items():
+            archive.writestr(name, content)
+    return path
+
+
+def test_a_value_hidden_under_a_merged_range_is_not_dropped_silently(log_path, capsys):
+    hide_value_under_merge(log_path)
+    assert openpyxl.load_workbook(log_path, read_only=True)["Notes"]["E2"].value == "hidden note"
+    arguments = [log_path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10]
+    code, _, err = run_cli(capsys, *arguments)
+    assert code == 1 and "Notes!E2 holds 'hidden note'" in err and "--allow-lossy" in err
+    code, out, _ = run_cli(capsys, *arguments, "--allow-lossy")
+    assert code == 0 and "values hidden under merged ranges" in out
+
+
+def test_a_changed_cell_stops_the_write(log_path, monkeypatch):
+    # a writer that changed one pre-existing cell: the check must catch it and write nothing
+    original = annotate_module._package_bytes
+
+    def corrupting(book, cached):
+        data = original(book, cached)
+        with zipfile.ZipFile(io.BytesIO(data)) as archive:
+            parts = {info.filename: archive.read(info) for info in archive.infolist()}
+        name = cell_check.worksheet_parts(zipfile.ZipFile(io.BytesIO(data)))[LOG_SHEET]
+        parts[name] = parts[name].replace(b'<c r="D5" t="n"><v>', b'<c r="D5" t="n"><v>1', 1)
+        output = io.BytesIO()
+        with zipfile.ZipFile(output, "w") as archive:
+            for part, content in parts.items():
+                archive.writestr(part, content)
+        return output.getvalue()
+
+    monkeypatch.setattr(annotate_module, "_package_bytes", corrupting)
+    with pytest.raises(AnnotateRefused, match=r"'Bench log'!D5 was .*, is now .*\nNothing was written"):
+        annotate(log_path, column="D", plan=plan())
+    assert not default_output(log_path).exists()
+
+
+def test_a_dropped_cell_stops_the_write(log_path, monkeypatch):
+    original = annotate_module._package_bytes
+
+    def dropping(book, cached):
+        del book["Summary"]["A2"]
+        return original(book, cached)
+
+    monkeypatch.setattr(annotate_module, "_package_bytes", dropping)
+    with pytest.raises(AnnotateRefused, match="Summary!A2 was 'Share', is now empty"):
+        annotate(log_path, column="D", plan=plan())
+
+
+# --------------------------------------------------------------------------- the cell reader behind the check
+
+
+CELL_VALUES = st.one_of(
+    st.integers(min_value=-(2**70), max_value=2**70),
+    st.floats(allow_nan=False, allow_infinity=False),
+    st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")), max_size=12),
+    st.text(alphabet=" \t\n&<>\"'ab", max_size=8),
+    st.booleans(),
+    st.datetimes(min_value=dt.datetime(1900, 3, 1), max_value=dt.datetime(9999, 1, 1)).map(
+        lambda d: d.replace(microsecond=d.microsecond // 1000 * 1000)),
+    st.sampled_from(["#N/A", "#DIV/0!", "=A1*2", "=SUM(A1:A3)&\"<x>\"", "=TAIL_PROB(1,2,3)"]),
+)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(CELL_VALUES, min_size=1, max_size=30))
+def test_the_fast_reader_reads_what_openpyxl_reads(values):
+    # reference: openpyxl's own sheet parser on the same bytes
+    book = openpyxl.Workbook()
+    sheet = book.active
+    for index, value in enumerate(values):
+        sheet.cell(index // 5 + 1, index % 5 + 2, value)
+    buffer = io.BytesIO()
+    book.save(buffer)
+    titles, fast_cells, fast = cell_check.cells_of_package(buffer.getvalue())
+    with zipfile.ZipFile(io.BytesIO(buffer.getvalue())) as archive:
+        package = cell_check._read_package(archive)
+        xml = archive.read(package.worksheet_parts[sheet.title])
+    exact = cell_check._parsed_sheet_cells(xml, package)
+    assert fast == [sheet.title]
+    assert fast_cells[sheet.title] == exact
+    assert cell_check.package_holds(buffer.getvalue(), titles, {sheet.title: exact})
+
+
+def test_the_check_sees_a_cell_written_twice_or_missing(log_path):
+    book = openpyxl.load_workbook(log_path)
+    buffer = io.BytesIO()
+    book.save(buffer)
+    titles, cells, _ = cell_check.cells_of_package(buffer.getvalue())
+    assert cell_check.package_holds(buffer.getvalue(), titles, cells)
+    fewer = {title: dict(found) for title, found in cells.items()}
+    fewer["Summary"].pop(next(iter(fewer["Summary"])))
+    assert not cell_check.package_holds(buffer.getvalue(), titles, fewer)
+    changed = {title: dict(found) for title, found in cells.items()}
+    key = cell_check.cell_key(5, 4)
+    changed[LOG_SHEET][key] = changed[LOG_SHEET][key] + 0.1
+    assert not cell_check.package_holds(buffer.getvalue(), titles, changed)
+    assert [str(d) for d in cell_check.differences(changed, cells)] == [
+        f"'{LOG_SHEET}'!D5 was {cells[LOG_SHEET][key] + 0.1!r}, is now {cells[LOG_SHEET][key]!r}"]
+
+
+def test_numbers_openpyxl_would_round_are_listed():
+    assert cell_check.rounds_on_save(0.1 + 0.2)
+    assert not cell_check.rounds_on_save(824.1)
+    assert cell_check.rounds_on_save(12345678901234567891)
+    assert not cell_check.rounds_on_save(2**40)
+    # check value: the float nearest 0.1 + 0.2 needs 17 significant digits (IEEE 754 double, from memory)
+    assert float("%.16g" % (0.1 + 0.2)) != 0.1 + 0.2 == float(repr(0.1 + 0.2))
+
+
+def test_a_long_log_goes_through_the_row_markup(tmp_path):
+    # rows below the estimate block get their decision appended to openpyxl's row markup
+    lifetimes = bench_lifetimes(400, seed=5)
+    path = rich_log(tmp_path / "long.xlsx", lifetimes)
+    result = annotate(path, column="D", plan=plan(), out=tmp_path / "long-values.xlsx")
+    live = annotate(path, column="D", plan=plan(), live=True, out=tmp_path / "long-live.xlsx")
+    values = openpyxl.load_workbook(result.path)[LOG_SHEET]
+    formulas = openpyxl.load_workbook(live.path)[LOG_SHEET]
+    cached = openpyxl.load_workbook(live.path, data_only=True)[LOG_SHEET]
+    stop = rule_stop(lifetimes)
+    assert values.cell(stop + 1, 10).value == "STOP" and values.cell(401, 10).value == "PAST STOP"
+    assert formulas["J401"].value == "=STOP_DECISION($D$2:D401,$M$3,$M$6,$M$7,$M$8,$M$4,$M$5,$M$9)"
+    assert cached["J401"].value == "PAST STOP" and cached.cell(stop + 1, 10).value == "STOP"
+    assert Path(result.path).stat().st_size > 0

@@ -1,0 +1,364 @@
+"""``tailstop annotate``: add the decision column and the estimate block to an existing test log.
+
+What it writes (layout in ``workbooks/log_layout.py``):
+
+* the **decision column** in the first column to the right of everything on
+  the sheet (so it cannot overwrite anything), header in row 1, one decision
+  per log row;
+* the **estimate block** one empty column further right, from row 1 down: the
+  rule's settings, where it stopped, the estimate and its bounds for the
+  probability and the odds, the units the accuracy needs, the warnings.
+
+By default both hold computed values, so the file reads the same in any
+spreadsheet program. With ``live`` they hold tailstop formulas (with the
+values stored as cached values): the settings in the block become inputs a
+user with the add-in can change. A live decision column fills
+``STOP_DECISION($B$2:B<row>, …)`` down, which a spreadsheet recalculates from
+the top of the log for every row; on logs of many thousands of rows the
+default computed values are the better choice.
+
+No loss, checked. The log is opened with ``open_workbook_safely`` (hostile
+files refused; content openpyxl would drop refused unless ``allow_lossy``).
+The new book is built in memory and every cell of every sheet is read back
+from those bytes and compared with the original (``workbooks/cell_check.py``);
+only if every pre-existing cell holds its value and formula, and the added
+cells hold what was meant, is the file written — to a new name unless
+``in_place`` — through the atomic saver, and the written file is checked to
+be byte for byte what was verified.
+"""
+from __future__ import annotations
+
+import hashlib
+import io
+import sys
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from openpyxl.utils.cell import get_column_letter
+
+from . import cells
+from .cli import command
+from .workbooks import cell_check
+from .workbooks.cached_values import save_with_cached_values
+from .workbooks.log_layout import (
+    DECISION_HEADER,
+    LIVE_NOTE_LINES,
+    LogAnalysis,
+    LogProblem,
+    LogRange,
+    RulePlan,
+    analyse_log,
+    block_layout,
+    read_log_range,
+    set_width,
+    sheet_reference,
+    write_decision_column,
+    write_estimate_block,
+)
+from .workbooks.package import GRID_COLUMNS, WorkbookRefused
+from .workbooks.row_cells import append_to_sheet
+from .workbooks.safe_io import open_workbook_safely, resolve_column, write_file_atomically
+
+__all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "summary", "add_arguments", "run"]
+
+OUTPUT_SUFFIX = "-tailstop"
+BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
+
+
+class AnnotateRefused(ValueError):
+    """The log was not annotated; the message says why and what to do."""
+
+
+@dataclass(frozen=True)
+class AnnotateResult:
+    """What ``annotate`` wrote.
+
+    Attributes
+    ----------
+    path, backup : pathlib.Path, pathlib.Path or None
+    log : LogRange
+        The log column that was read.
+    decision_column : int
+    block : str
+        The estimate block's range, e.g. ``'G1:H27'``.
+    analysis : LogAnalysis
+    cells_checked : int
+        Pre-existing non-empty cells found unchanged in the written book.
+    sheets_checked : int
+    losses : list of str
+        What was given up with ``allow_lossy`` (empty otherwise).
+    live : bool
+    """
+
+    path: Path
+    backup: Path | None
+    log: LogRange
+    decision_column: int
+    block: str
+    analysis: LogAnalysis
+    cells_checked: int
+    sheets_checked: int
+    losses: list
+    live: bool
+
+
+def default_output(source) -> Path:
+    """``LOG-tailstop.xlsx`` beside ``LOG.xlsx``."""
+    source = Path(source)
+    return source.with_name(f"{source.stem}{OUTPUT_SUFFIX}.xlsx")
+
+
+def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=False, backup=True, live=False,
+             allow_lossy=False) -> AnnotateResult:
+    """Add the decision column and the estimate block to a test log and write the result.
+
+    Parameters
+    ----------
+    source : path
+        The log, an .xlsx workbook.
+    column : str or int
+        The log column: a letter, a 1-based number, or the header text in row 1.
+    plan : RulePlan
+        The rule's settings (``RulePlan.checked``).
+    sheet : str, optional
+        The sheet; default the active one.
+    out : path, optional
+        Where to write; default ``default_output(source)``. Never overwritten.
+    in_place : bool
+        Replace ``source`` itself (keeping ``<name>.backup.xlsx`` unless ``backup`` is false).
+    live : bool
+        Write tailstop formulas (with cached values) instead of values.
+    allow_lossy : bool
+        Go on although openpyxl would drop some content of the book; the
+        losses are listed in the result.
+
+    Raises
+    ------
+    AnnotateRefused, WorkbookRefused, LogProblem, FileExistsError
+        With a message saying what is wrong; nothing is written then.
+    """
+    source = Path(source)
+    target = _target(source, out, in_place)
+    book = open_workbook_safely(source, allow_lossy=allow_lossy)
+    losses = [str(loss) for loss in book.tailstop_report.losses]
+    losses += _hidden_values(source, book, allow_lossy)
+    worksheet = _worksheet(book, sheet, source)
+    log, values = _log_column(worksheet, column)
+    analysis = analyse_log(log, values, plan)
+    before = cell_check.snapshot(book)
+    decision_column = worksheet.max_column + 1
+    label_column = decision_column + 1 + BLOCK_GAP
+    if label_column + 1 > GRID_COLUMNS:
+        raise AnnotateRefused(f"sheet {worksheet.title!r} has no free columns on the right for the decision "
+                              "column and the estimate block")
+    layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
+    cached = dict(before.rounded)
+    write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
+                         source="values computed by tailstop annotate")
+    markup = write_decision_column(worksheet, log, decision_column, analysis, live=live, cached=cached,
+                                   layout=layout, as_markup=_rows_written_anyway(log, values, layout))
+    set_width(worksheet, decision_column, 18)
+    set_width(worksheet, label_column, 44)
+    set_width(worksheet, label_column + 1, 24)
+    added = _added_cells(worksheet, log, decision_column, layout, cached)
+    added.update({cell_check.cell_key(row, decision_column): content for row, (_, content) in markup.items()})
+    checked = before.cell_count
+    expected = cell_check.expected_after(before, {worksheet.title: added}, in_place=True)
+    data = _package_bytes(book, cached)
+    data = append_to_sheet(data, worksheet.title, {row: cell for row, (cell, _) in markup.items()})
+    _verify(data, before, expected, source)
+    saved = write_file_atomically(target, lambda handle: handle.write(data), in_place=in_place, backup=backup)
+    _check_written(saved.path, data)
+    return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
+                          checked, len(before.cells), losses, live)
+
+
+def _target(source, out, in_place):
+    if in_place and out is not None:
+        raise AnnotateRefused("give either --out or --in-place, not both")
+    target = source if in_place else Path(out) if out is not None else default_output(source)
+    if not in_place and target.suffix.lower() != ".xlsx":
+        raise AnnotateRefused(f"{target.name}: the annotated book is written as .xlsx; give a name ending in .xlsx")
+    if not in_place and target.exists():
+        raise FileExistsError(f"{target} exists; choose another name with --out, or replace the log with --in-place")
+    return target
+
+
+def _hidden_values(source, book, allow_lossy):
+    hidden = cell_check.hidden_merged_values(source, book)
+    if not hidden:
+        return []
+    shown = "; ".join(f"{title}!{coordinate} holds {value!r}" for title, coordinate, value in hidden[:3])
+    more = f" and {len(hidden) - 3} more" if len(hidden) > 3 else ""
+    if not allow_lossy:
+        raise AnnotateRefused(f"{source.name}: cells hidden under merged ranges hold values that openpyxl drops "
+                              f"on save: {shown}{more}. Unmerge those cells or clear them, or accept the loss "
+                              "with --allow-lossy")
+    return [f"values hidden under merged ranges ({shown}{more})"]
+
+
+def _worksheet(book, sheet, source):
+    if sheet is None:
+        chosen = book.active
+    elif sheet in book.sheetnames:
+        chosen = book[sheet]
+    else:
+        raise AnnotateRefused(f"{source.name} has no sheet {sheet!r}; its sheets are "
+                              + ", ".join(repr(name) for name in book.sheetnames))
+    if not hasattr(chosen, "_cells"):
+        raise AnnotateRefused(f"{chosen.title!r} is a chart sheet, not a sheet with a log; choose one with --sheet")
+    return chosen
+
+
+def _log_column(worksheet, column):
+    try:
+        number = resolve_column(worksheet, column)
+    except ValueError as problem:
+        raise AnnotateRefused(f"sheet {worksheet.title!r}: {problem}") from None
+    log, values = read_log_range(worksheet, number)
+    header = worksheet._cells.get((1, number))
+    header_value = None if header is None else header.value
+    if isinstance(header_value, (int, float)) and not isinstance(header_value, bool):
+        raise AnnotateRefused(f"{log.address(1)} holds {header_value:g}: row 1 must hold the column's header, "
+                              "with the log from row 2 down; insert a header row")
+    if log.rows == 0:
+        raise AnnotateRefused(f"{log.address(2)} and the rows below are empty: no log to annotate in column "
+                              f"{log.letter} of sheet {worksheet.title!r}")
+    return log, values
+
+
+def _rows_written_anyway(log, values, layout):
+    """Log rows below the estimate block whose log cell holds a value: their decision can be appended as markup."""
+    first = max(log.first_row, layout.last_row + 1)
+    return [row for row in range(first, log.last_row + 1) if values[row - log.first_row] is not None]
+
+
+def _added_cells(worksheet, log, decision_column, layout, cached):
+    coordinates = [(log.first_row - 1 + offset, decision_column) for offset in range(log.rows + 1)]
+    for row in range(layout.top_row, layout.last_row + 1):
+        coordinates += [(row, layout.label_column), (row, layout.value_column)]
+    return cell_check.cells_written(worksheet, coordinates, cached)
+
+
+def _package_bytes(book, cached):
+    """The .xlsx package as it will be written; formula cells and listed numbers keep their cached values."""
+    if not cached:
+        buffer = io.BytesIO()
+        book.save(buffer)
+        return buffer.getvalue()
+    with tempfile.TemporaryDirectory(prefix="tailstop-annotate-") as folder:
+        path = Path(folder) / "annotated.xlsx"
+        save_with_cached_values(book, path, cached)
+        return path.read_bytes()
+
+
+def _verify(data, before, expected, source):
+    if cell_check.package_holds(data, before.titles, expected):
+        return
+    titles, actual, _ = cell_check.cells_of_package(data)
+    if titles != before.titles:
+        raise AnnotateRefused(f"{source.name}: the rewritten book would not have the same sheets "
+                              f"({before.titles} became {titles}); nothing was written")
+    found = cell_check.differences(expected, actual) or [
+        "the sheets differ, though no cell does (report this with the workbook)"]
+    if found:
+        listed = "\n".join(f"  - {difference}" for difference in found)
+        raise AnnotateRefused(f"{source.name}: the rewritten book would not keep every cell as it was:\n{listed}\n"
+                              "Nothing was written.")
+
+
+def _check_written(path, data):
+    if hashlib.sha256(Path(path).read_bytes()).digest() != hashlib.sha256(data).digest():
+        raise OSError(f"{path} does not hold the bytes that were checked; do not use it")
+
+
+# --------------------------------------------------------------------------- command line
+
+
+@command("annotate", "Add the stop/continue decision column and the estimate block to a test log (.xlsx).")
+def add_arguments(parser):
+    parser.add_argument("log", metavar="LOG.xlsx", help="the test log, one unit per row, header in row 1")
+    parser.add_argument("--sheet", help="the sheet holding the log (default: the active sheet)")
+    parser.add_argument("--column", required=True,
+                        help="the lifetime column: a letter (B) or the header text of row 1")
+    parser.add_argument("--threshold", required=True, help="the threshold c (mission time, warranty limit), "
+                                                           "in the unit of the lifetimes")
+    parser.add_argument("--accuracy", required=True, help="odds to be known within this factor d > 1, e.g. 1.5")
+    parser.add_argument("--confidence", default="0.95", help="confidence level, e.g. 0.95 (default)")
+    parser.add_argument("--pilot", required=True, help="units tested before the rule is first consulted (>= 2)")
+    parser.add_argument("--method", default="pass-fail", help="pass-fail (default), known-shape or fitted-shape")
+    parser.add_argument("--shape", help="the gamma shape, for known-shape")
+    parser.add_argument("--check-every", default="1", help="consult the rule every k-th unit after the pilot "
+                                                          "(default 1)")
+    parser.add_argument("--out", metavar="NEW.xlsx", help="where to write (default: LOG-tailstop.xlsx beside the "
+                                                          "log); an existing file is never overwritten")
+    parser.add_argument("--in-place", action="store_true", help="replace the log itself (a backup is kept)")
+    parser.add_argument("--no-backup", action="store_true", help="with --in-place: keep no backup")
+    parser.add_argument("--live", action="store_true",
+                        help="write tailstop formulas (with their values stored) instead of values")
+    parser.add_argument("--allow-lossy", action="store_true",
+                        help="go on although openpyxl would drop some content of the book (listed)")
+    return run
+
+
+def run(args, out=None, err=None):
+    out, err = out or sys.stdout, err or sys.stderr
+    try:
+        if args.no_backup and not args.in_place:
+            raise AnnotateRefused("--no-backup applies to --in-place only")
+        plan = RulePlan.checked(args.threshold, args.accuracy, args.confidence, args.pilot, args.method,
+                                args.shape, args.check_every)
+        result = annotate(args.log, column=args.column, plan=plan, sheet=args.sheet, out=args.out,
+                          in_place=args.in_place, backup=not args.no_backup, live=args.live,
+                          allow_lossy=args.allow_lossy)
+    except (AnnotateRefused, WorkbookRefused, LogProblem, cells.InputError, FileExistsError) as problem:
+        print(f"tailstop annotate: {_cli_text(problem)}", file=err)
+        return 1
+    except OSError as problem:
+        print(f"tailstop annotate: {problem}", file=err)
+        return 1
+    print(summary(result), file=out)
+    return 0
+
+
+def _cli_text(problem):
+    text = str(problem)
+    return text.replace("accept the loss (allow_lossy)", "accept the loss with --allow-lossy")
+
+
+def summary(result: AnnotateResult) -> str:
+    """The lines ``tailstop annotate`` prints."""
+    analysis, log = result.analysis, result.log
+    figures = analysis.figures
+    lines = [f"Annotated {log.text()} ({analysis.units} units) -> {result.path}"]
+    lines.append(f"  rule: {analysis.plan.describe()}")
+    if analysis.stopped:
+        row = log.first_row + analysis.stop_offset
+        lines.append(f"  decision: STOP at row {row}, after {analysis.units_used} units")
+    else:
+        lines.append(f"  decision: {analysis.last_decision or 'CONTINUE'} - the rule has not stopped after "
+                     f"{analysis.units} units; the estimate below uses them all and the accuracy is not reached yet")
+    lines.append(f"  estimate: P(life > {analysis.plan.threshold:g}) = {_figure(figures['estimate'])}, "
+                 f"bounds {_figure(figures['p_low'])} .. {_figure(figures['p_high'])}; odds "
+                 f"{_figure(figures['odds'])} ({_figure(figures['odds_low'])} .. {_figure(figures['odds_high'])})")
+    for note in analysis.notes:
+        lines.append(f"  warning: {note}" if note != "no warnings for this log and method" else f"  {note}")
+    column = f"{sheet_reference(log.sheet_title)}!{get_column_letter(result.decision_column)}"
+    mode = "tailstop formulas with cached values" if result.live else "values"
+    lines.append(f"  wrote: decision column {column} ({DECISION_HEADER!r}), estimate block {result.block}, as {mode}")
+    lines.append(f"  checked: all {result.cells_checked:,} cells of {result.sheets_checked} sheet"
+                 f"{'s' if result.sheets_checked != 1 else ''} kept their values and formulas")
+    if result.backup is not None:
+        lines.append(f"  backup of the original: {result.backup}")
+    for loss in result.losses:
+        lines.append(f"  given up (--allow-lossy): {loss}")
+    return "\n".join(lines)
+
+
+def _figure(value):
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    return str(value) if value != "" else "-"
+
+
