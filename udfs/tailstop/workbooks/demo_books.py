@@ -159,6 +159,7 @@ def log_book(units=None):
     sheet.freeze_panes = "A2"
     sheet.conditional_formatting.add(f"A2:J{log.last_row}",
                                      FormulaRule(formula=['$C2="STOP"'], fill=ROW_STOP_FILL, stopIfTrue=False))
+    _print_one_page_wide(sheet)
     charts = book.create_sheet("Charts")
     _charts(charts, sheet, log, analysis, plan, layout, cached)
     book.active = 0
@@ -413,7 +414,7 @@ def plan_book():
             value = summary[line - 1][column - 1] if line <= len(summary) else ""
             set_formula(sheet, f"{letter}{row + line}",
                         f'=IFERROR(INDEX(PLAN_SUMMARY({arguments}),{line},{column}),"")', value, cached)
-        sheet[f"B{row + line}"].number_format = "0.0000"
+        sheet[f"B{row + line}"].number_format = "General"  # counts, probabilities and names alike
     caution = sheet.cell(row + SUMMARY_ROWS + 2, 1, "Figures assume independent valves with gamma lifetimes at the "
                                                     "guessed parameters (pass-fail: only the probability).")
     caution.font = SOFT_FONT
@@ -421,6 +422,7 @@ def plan_book():
     for letter in "BCDE":
         sheet.column_dimensions[letter].width = 14
     sheet.freeze_panes = "A3"
+    _print_one_page_wide(sheet)
     book.active = 1
     return book, cached, figures
 
@@ -433,6 +435,14 @@ def _plan_value(name, values, method):
     if name == "ACCURACY_FOR_UNITS":
         return function(values["available"], *guess, values["confidence"], method)
     return function(*guess, values["accuracy"], values["confidence"], values["pilot"], method)
+
+
+def _print_one_page_wide(sheet):
+    """Landscape, every column on one page width (rows run on as they need)."""
+    sheet.page_setup.orientation = "landscape"
+    sheet.page_setup.fitToWidth = 1
+    sheet.page_setup.fitToHeight = 0
+    sheet.sheet_properties.pageSetUpPr.fitToPage = True
 
 
 def _section(sheet, row, text):
