@@ -269,7 +269,10 @@ def test_blank_rows_and_survivors(tmp_path):
 
 
 def run_cli(capsys, *arguments):
-    code = main(["annotate", *map(str, arguments)])
+    try:
+        code = main(["annotate", *map(str, arguments)])
+    except SystemExit as leaving:  # argparse ends the program on a usage error
+        code = leaving.code
     captured = capsys.readouterr()
     return code, captured.out, captured.err
 
@@ -519,3 +522,11 @@ def test_a_long_log_goes_through_the_row_markup(tmp_path):
     assert formulas["J401"].value == "=STOP_DECISION($D$2:D401,$M$3,$M$6,$M$7,$M$8,$M$4,$M$5,$M$9)"
     assert cached["J401"].value == "PAST STOP" and cached.cell(stop + 1, 10).value == "STOP"
     assert Path(result.path).stat().st_size > 0
+
+
+def test_usage_errors_and_missing_files_exit_with_1(tmp_path, capsys):
+    code, _, err = run_cli(capsys, tmp_path / "log.xlsx")
+    assert code == 1 and "the following arguments are required: --column, --threshold, --accuracy, --pilot" in err
+    code, _, err = run_cli(capsys, tmp_path / "log.xlsx", "--column", "B", "--threshold", 1500, "--accuracy", 1.5,
+                           "--pilot", 10)
+    assert code == 1 and "log.xlsx" in err and "Traceback" not in err

@@ -28,6 +28,7 @@ be byte for byte what was verified.
 """
 from __future__ import annotations
 
+import functools
 import hashlib
 import io
 import sys
@@ -299,7 +300,14 @@ def add_arguments(parser):
                         help="write tailstop formulas (with their values stored) instead of values")
     parser.add_argument("--allow-lossy", action="store_true",
                         help="go on although openpyxl would drop some content of the book (listed)")
+    parser.error = functools.partial(_usage_error, parser)
     return run
+
+
+def _usage_error(parser, message):
+    """A missing or malformed option is bad input too: exit code 1, as for every refusal."""
+    parser.print_usage(sys.stderr)
+    parser.exit(1, f"tailstop annotate: {message}\n")
 
 
 def run(args, out=None, err=None):

@@ -45,6 +45,7 @@ import zipfile
 from dataclasses import dataclass, field
 
 import defusedxml.ElementTree
+import openpyxl
 from openpyxl.cell.rich_text import CellRichText
 from openpyxl.reader.strings import read_string_table
 from openpyxl.styles.stylesheet import Stylesheet
@@ -53,7 +54,7 @@ from openpyxl.utils.datetime import CALENDAR_MAC_1904, WINDOWS_EPOCH, from_excel
 from openpyxl.worksheet._reader import WorkSheetParser
 from openpyxl.worksheet.formula import ArrayFormula, DataTableFormula
 
-from .safe_io import open_workbook_safely
+from .safe_io import require_defused_openpyxl
 
 __all__ = [
     "CellDifference",
@@ -311,11 +312,12 @@ def collector_paused():
 # --------------------------------------------------------------------------- values hidden under merged cells
 
 
-def hidden_merged_values(path, book, *, limits=None):
+def hidden_merged_values(path, book):
     """Values in the original that openpyxl's load dropped because a merged range covers them.
 
-    Re-reads the original in read-only mode (after the same safety checks),
-    over the rows of the merged ranges only.
+    Re-reads the original in read-only mode over the rows of the merged
+    ranges only. ``book`` must have been opened from ``path`` with
+    ``open_workbook_safely``, which has checked the file just before.
 
     Returns
     -------
@@ -324,8 +326,8 @@ def hidden_merged_values(path, book, *, limits=None):
     merged = {sheet.title: list(sheet.merged_cells.ranges) for sheet in book.worksheets if sheet.merged_cells.ranges}
     if not merged:
         return []
-    options = {} if limits is None else {"limits": limits}
-    original = open_workbook_safely(path, read_only=True, **options)
+    require_defused_openpyxl()
+    original = openpyxl.load_workbook(path, read_only=True)
     found = []
     try:
         for title, ranges in merged.items():
