@@ -148,13 +148,32 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     log, values = _log_column(worksheet, column)
     analysis = analyse_log(log, values, plan)
     before = cell_check.snapshot(book)
+    cached = dict(before.rounded)  # numbers openpyxl would round are stored exactly
+    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached)
+    checked = before.cell_count
+    expected = cell_check.expected_after(before, {worksheet.title: added}, in_place=True)
+    data = _package_bytes(book, cached)
+    data = append_to_sheet(data, worksheet.title, markup)
+    _verify(data, before, expected, source)
+    saved = write_file_atomically(target, lambda handle: handle.write(data), in_place=in_place, backup=backup)
+    _check_written(saved.path, data)
+    return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
+                          checked, len(before.cells), losses, live)
+
+
+def _add(worksheet, log, values, analysis, live, cached):
+    """Write the block and the decision column right of everything on the sheet.
+
+    Returns
+    -------
+    (decision column, BlockLayout, {row: markup to append}, {cell key: canonical content of every added cell})
+    """
     decision_column = worksheet.max_column + 1
     label_column = decision_column + 1 + BLOCK_GAP
     if label_column + 1 > GRID_COLUMNS:
         raise AnnotateRefused(f"sheet {worksheet.title!r} has no free columns on the right for the decision "
                               "column and the estimate block")
     layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
-    cached = dict(before.rounded)
     write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
                          source="values computed by tailstop annotate")
     markup = write_decision_column(worksheet, log, decision_column, analysis, live=live, cached=cached,
@@ -164,15 +183,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     set_width(worksheet, label_column + 1, 24)
     added = _added_cells(worksheet, log, decision_column, layout, cached)
     added.update({cell_check.cell_key(row, decision_column): content for row, (_, content) in markup.items()})
-    checked = before.cell_count
-    expected = cell_check.expected_after(before, {worksheet.title: added}, in_place=True)
-    data = _package_bytes(book, cached)
-    data = append_to_sheet(data, worksheet.title, {row: cell for row, (cell, _) in markup.items()})
-    _verify(data, before, expected, source)
-    saved = write_file_atomically(target, lambda handle: handle.write(data), in_place=in_place, backup=backup)
-    _check_written(saved.path, data)
-    return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
-                          checked, len(before.cells), losses, live)
+    return decision_column, layout, {row: cell for row, (cell, _) in markup.items()}, added
 
 
 def _target(source, out, in_place):
@@ -190,7 +201,8 @@ def _hidden_values(source, book, allow_lossy):
     hidden = cell_check.hidden_merged_values(source, book)
     if not hidden:
         return []
-    shown = "; ".join(f"{title}!{coordinate} holds {value!r}" for title, coordinate, value in hidden[:3])
+    shown = "; ".join(f"{sheet_reference(title)}!{coordinate} holds {value!r}"
+                      for title, coordinate, value in hidden[:3])
     more = f" and {len(hidden) - 3} more" if len(hidden) > 3 else ""
     if not allow_lossy:
         raise AnnotateRefused(f"{source.name}: cells hidden under merged ranges hold values that openpyxl drops "

@@ -241,22 +241,26 @@ def _charts(charts, log_sheet, log, analysis, plan, layout, cached):
         charts.cell(offset, 1, label).font = Font(bold=True, color="34495E")
         set_formula(charts, f"B{offset}", formula, value, cached)
         charts[f"B{offset}"].number_format = number_format
-    # two-point series for the vertical STOP lines: (N, low) - (N, high)
+    _stop_lines(charts, analysis.filled_used, lowest, highest, most_needed, cached)
+    charts.column_dimensions["A"].width = 30
+    charts.column_dimensions["B"].width = 12
+    charts.add_chart(_log_odds_chart(log_sheet, charts, first, last, plan), "A10")
+    charts.add_chart(_units_chart(log_sheet, charts, first, last), "A42")
+
+
+def _stop_lines(charts, units, lowest, highest, most_needed, cached):
+    """Two-point series (N, low) - (N, high) that draw the vertical STOP line of each chart."""
     charts["D2"], charts["E2"], charts["F2"] = "STOP line x", "log-odds y", "units y"
     for cell in ("D2", "E2", "F2"):
         charts[cell].font = SOFT_FONT
     for row, (y_odds, y_cached) in enumerate((("=$B$5", lowest), ("=$B$6", highest)), start=3):
-        set_formula(charts, f"D{row}", "=$B$3", analysis.filled_used, cached)
+        set_formula(charts, f"D{row}", "=$B$3", units, cached)
         set_formula(charts, f"E{row}", y_odds, y_cached, cached)
     charts["F3"] = 0
     set_formula(charts, "F4", "=$B$7", most_needed, cached)
     for row in (3, 4):
         charts[f"D{row}"].number_format, charts[f"E{row}"].number_format = "0", "0.000"
         charts[f"F{row}"].number_format = "0"
-    charts.column_dimensions["A"].width = 30
-    charts.column_dimensions["B"].width = 12
-    charts.add_chart(_log_odds_chart(log_sheet, charts, first, last, plan), "A10")
-    charts.add_chart(_units_chart(log_sheet, charts, first, last), "A42")
 
 
 def _cached_column(cached, title, letter, first, last):
