@@ -230,11 +230,18 @@ def render(story: Story | None = None) -> str:
     parts = []
     add = parts.append
 
+    from .demo import DEFAULT_FOLDER as folder
+    from .workbooks.demo_books import LOG_BOOK as log_book, PLAN_BOOK as plan_book
+
     add(f"""# Worked example: solenoid valves on a cycling bench
 
 This page follows one test from the planning meeting to the sentence that goes
-into the report. The scenario is the demo that ships with tailstop
-(`tailstop demo`); the company, the valves and every lifetime are invented.
+into the report. The scenario is the demo that ships with tailstop; the
+company, the valves and every lifetime are invented. `tailstop demo` writes it
+as two books in `{folder}/`: `{log_book}` (the bench log with its
+decision column, running estimate and charts) and `{plan_book}` (the
+planning sheet). The cell addresses on this page are those of a log with the
+lifetimes in column B from row 2 and the plan in F1:F4.
 Every number below is computed by tailstop's formulas from that scenario
 (`udfs/tailstop/scenario.py`): the page is written by
 `python -m tailstop.worked_example`, and a test checks that it matches the
