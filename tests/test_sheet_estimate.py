@@ -129,6 +129,8 @@ def test_numeric_text_is_read_as_a_number(tmp_path):
     (lambda: ACCURACY_FOR_UNITS(10.5, 100, 2, 50, 0.9), "units must be a whole number"),
     (lambda: GAMMA_FIT_SHAPE([[5.0], [5.0], [5.0]]), "all lifetimes are equal"),
     (lambda: UNITS_REQUIRED(1e6, 2, 1, 1.5, 0.95), "one side of the threshold"),
+    (lambda: UNITS_REQUIRED(100000, 2, 600, 1.5, 0.95), "more than any test can run"),
+    (lambda: ACCURACY_FOR_UNITS(1, 100000, 2, 600, 0.95), "beyond any number"),
 ])
 def test_bad_arguments_say_what_to_fix(call, fragment):
     result = call()

@@ -26,6 +26,8 @@ __all__ = [
     "accuracy",
     "confidence",
     "whole_number",
+    "pilot",
+    "probability",
     "method_name",
     "is_missing",
     "describe",
@@ -236,6 +238,26 @@ def whole_number(value, name, minimum=1, maximum=None) -> int:
     if maximum is not None and result > maximum:
         raise InputError(f"{name} must be at most {maximum:,} (got {result:g})")
     return int(result)
+
+
+def pilot(value, maximum) -> int:
+    """The pilot sample size: a whole number of units, at least 2 (σ² needs two units)."""
+    m = number(value, "pilot")
+    if m != int(m):
+        raise InputError(f"pilot must be a whole number of units (got {m:g})")
+    if m < 2:
+        raise InputError(f"pilot must be at least 2 units; fewer cannot estimate the variance (got {m:g})")
+    if m > maximum:
+        raise InputError(f"pilot must be at most {maximum:,} (got {m:g})")
+    return int(m)
+
+
+def probability(value, name) -> float:
+    """A probability strictly between 0 and 1."""
+    p = number(value, name)
+    if not 0 < p < 1:
+        raise InputError(f"{name} must be strictly between 0 and 1 (got {p:g})")
+    return p
 
 
 def method_name(value, choices, default="pass-fail") -> str:

@@ -72,15 +72,7 @@ def _request(threshold, accuracy, confidence, method, shape) -> _Request:
 
 
 def _pilot(value) -> int:
-    m = cells.number(value, "pilot")
-    if m != int(m):
-        raise cells.InputError(f"pilot must be a whole number of units (got {m:g})")
-    if m < MIN_PILOT:
-        raise cells.InputError(f"pilot must be at least {MIN_PILOT} units; fewer cannot estimate the variance "
-                               f"(got {m:g})")
-    if m > _LARGEST_COUNT:
-        raise cells.InputError(f"pilot must be at most {_LARGEST_COUNT:,} (got {m:g})")
-    return int(m)
+    return cells.pilot(value, maximum=_LARGEST_COUNT)
 
 
 def _check_every(value) -> int:

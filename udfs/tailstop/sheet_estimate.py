@@ -137,6 +137,19 @@ def planning_sigma2(threshold, shape, scale, method):
     return sigma2
 
 
+# A unit count above this is no test plan; a cell says so instead of showing a huge number.
+LARGEST_UNIT_COUNT = 1e12
+
+
+def unit_count(n_star) -> int:
+    """ceil(n*) as a whole number of units, refused when it is beyond any test."""
+    units = float(_accuracy.whole_units(n_star))
+    if not units <= LARGEST_UNIT_COUNT:
+        raise cells.InputError(f"this needs about {units:.3g} units, more than any test can run; "
+                               "ask for a larger accuracy factor or choose a threshold nearer the typical life")
+    return int(units)
+
+
 @formula(
     threshold=HELP["threshold"], shape="Guessed gamma shape a > 0", scale="Guessed gamma scale s > 0, unit of the lifetimes",
     accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
@@ -145,17 +158,15 @@ def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None):
     """Units a fixed-size test needs for the accuracy at the confidence, from guessed gamma parameters."""
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
     sigma2 = planning_sigma2(threshold, shape, scale, method)
-    return int(_accuracy.whole_units(_accuracy.units_for_accuracy(sigma2, d, level)))
+    return unit_count(_accuracy.units_for_accuracy(sigma2, d, level))
 
 
 @formula(p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"])
 def UNITS_REQUIRED_FROM_P(p_guess, accuracy, confidence):
     """Units a fixed-size pass-fail test needs for the accuracy at the confidence, from a guessed probability."""
-    p = cells.number(p_guess, "p_guess")
-    if not 0 < p < 1:
-        raise cells.InputError(f"p_guess must be strictly between 0 and 1 (got {p:g})")
+    p = cells.probability(p_guess, "p_guess")
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
-    return int(_accuracy.whole_units(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level)))
+    return unit_count(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level))
 
 
 @formula(
@@ -166,7 +177,11 @@ def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None):
     """Accuracy factor d that a fixed-size test of this many units reaches at the confidence."""
     n = cells.whole_number(units, "units", minimum=1)
     level = cells.confidence(confidence)
-    return _accuracy.accuracy_for_units(planning_sigma2(threshold, shape, scale, method), n, level)
+    with np.errstate(over="ignore"):
+        d = float(_accuracy.accuracy_for_units(planning_sigma2(threshold, shape, scale, method), n, level))
+    if not np.isfinite(d):
+        raise cells.InputError("with so few units the accuracy factor is beyond any number; add units")
+    return d
 
 
 def _fit(observations):

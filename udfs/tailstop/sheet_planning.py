@@ -40,7 +40,7 @@ PLAN_HELP = {
 
 
 def _pilot(value):
-    return cells.whole_number(value, "pilot", minimum=2, maximum=EXACT_UNITS_LIMIT)
+    return cells.pilot(value, maximum=EXACT_UNITS_LIMIT)
 
 
 def _exact_limit(n_star, pilot):
@@ -140,12 +140,11 @@ def PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot, method=No
     return summary_table(plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed))
 
 
-@formula(p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], pilot=PLAN_HELP["pilot"])
+@formula(returns="table", p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"],
+         pilot=PLAN_HELP["pilot"])
 def PLAN_SUMMARY_FROM_P(p_guess, accuracy, confidence, pilot):
     """Table (2 columns) of what the pass-fail sequential rule will do, from a guessed probability (exact)."""
-    p = cells.number(p_guess, "p_guess")
-    if not 0 < p < 1:
-        raise cells.InputError(f"p_guess must be strictly between 0 and 1 (got {p:g})")
+    p = cells.probability(p_guess, "p_guess")
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
     n_star = float(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level))
     m = _pilot(pilot)
