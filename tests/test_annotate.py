@@ -452,7 +452,8 @@ def test_a_dropped_cell_stops_the_write(log_path, monkeypatch):
 
 CELL_VALUES = st.one_of(
     st.integers(min_value=-(2**70), max_value=2**70),
-    st.floats(allow_nan=False, allow_infinity=False),
+    # beyond 1e308, openpyxl's 16-digit text of a float can read back as infinity (a value no spreadsheet holds)
+    st.floats(allow_nan=False, allow_infinity=False, min_value=-1e308, max_value=1e308),
     st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")), max_size=12),
     st.text(alphabet=" \t\n&<>\"'ab", max_size=8),
     st.booleans(),
@@ -530,3 +531,47 @@ def test_usage_errors_and_missing_files_exit_with_1(tmp_path, capsys):
     code, _, err = run_cli(capsys, tmp_path / "log.xlsx", "--column", "B", "--threshold", 1500, "--accuracy", 1.5,
                            "--pilot", 10)
     assert code == 1 and "log.xlsx" in err and "Traceback" not in err
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), CELL_VALUES, st.booleans()), max_size=25))
+def test_annotate_keeps_whatever_else_the_book_holds(placed):
+    # property: any mix of values and formulas beside the log and on another sheet comes through unchanged
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "mixed.xlsx"
+        book = openpyxl.Workbook()
+        log = book.active
+        log.title = "Log"
+        log.append(["Unit", "Hours"])
+        for unit, value in enumerate(bench_lifetimes(60, seed=3), start=1):
+            log.append([unit, value])
+        other = book.create_sheet("Other")
+        for row, column, value, elsewhere in placed:
+            (other if elsewhere else log).cell(row + 1, column, value)
+        book.save(path)
+        before = all_cells(path)
+        result = annotate(path, column="Hours", plan=plan(threshold=1200))
+        after = all_cells(result.path)
+        for title, cells in before.items():
+            assert {c: after[title].get(c) for c in cells} == cells, title
+        added = {c for c in after["Log"] if c not in before["Log"]}
+        first_new = log.max_column + 1
+        assert all(openpyxl.utils.cell.column_index_from_string(
+            openpyxl.utils.cell.coordinate_from_string(c)[0]) >= first_new for c in added)
+        assert set(after["Other"]) == set(before["Other"])
+
+
+def test_a_number_openpyxl_cannot_write_back_is_refused_by_the_check(tmp_path):
+    # openpyxl writes 1.7976931348623155e308 as "1.797693134862316e+308", which reads back as infinity,
+    # and writes infinity as an empty cell: the check must refuse rather than lose the cell
+    book = openpyxl.Workbook()
+    book.active.append(["Hours"])
+    for value in bench_lifetimes(30):
+        book.active.append([value])
+    book.active["C5"] = 1.7976931348623155e308
+    book.save(tmp_path / "huge.xlsx")
+    with pytest.raises(AnnotateRefused, match=r"Sheet!C5 was inf, is now empty\nNothing was written"):
+        annotate(tmp_path / "huge.xlsx", column="A", plan=plan())
+    assert not default_output(tmp_path / "huge.xlsx").exists()
