@@ -151,6 +151,9 @@ def log_book(units=None):
                          unit=scenario.UNIT)
     write_decision_column(sheet, log, DECISION_COLUMN, analysis, live=True, cached=cached, layout=layout)
     _running_columns(sheet, log, lifetimes, plan, layout, cached)
+    for row in range(1, log.last_row + 1):
+        sheet.cell(row, DECISION_COLUMN).alignment = Alignment(horizontal="center", vertical="center",
+                                                               wrap_text=row == 1)
     sheet.row_dimensions[1].height = 32
     sheet.column_dimensions["C"].width = 15
     sheet.column_dimensions["K"].width = 3
@@ -558,7 +561,7 @@ def _write(folder, name, data):
     if path.exists() and path.read_bytes() == data:
         return path, False, None
     saved = write_file_atomically(path, lambda handle: handle.write(data), in_place=True, backup=True)
-    return path, True, saved.backup
+    return path, True, None if saved.backup is None else path.with_name(saved.backup.name)
 
 
 def build_demo(folder) -> DemoResult:
