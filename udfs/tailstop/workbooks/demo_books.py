@@ -509,6 +509,11 @@ PLAN_READ_ME = (
 )
 
 
+# Characters that fit on one line of the Read me column (width 110), and a line's height in points.
+_READ_ME_CHARACTERS_PER_LINE = 120
+_LINE_POINTS = 15
+
+
 def _read_me(sheet, lines):
     sheet.title = "Read me"
     sheet.column_dimensions["A"].width = 110
@@ -516,6 +521,9 @@ def _read_me(sheet, lines):
     for index, text in enumerate(lines):
         cell = sheet.cell(row, 1, text)
         cell.alignment = WRAP
+        # spreadsheet programs do not all grow a row to fit wrapped text on opening
+        wrapped_lines = max(1, math.ceil(len(text) / _READ_ME_CHARACTERS_PER_LINE))
+        sheet.row_dimensions[row].height = _LINE_POINTS * wrapped_lines + (6 if index == 0 else 2)
         if index == 0:
             cell.font = Font(bold=True, size=14, color="34495E")
         elif text.startswith("How to"):
