@@ -30,10 +30,9 @@ import numpy as np
 
 from . import cells
 from .formula import formula
-from .methods import METHOD_NAMES
 from .rule import MIN_PILOT
 from .sequential import decision_column, two_stage_plan, units_needed_now
-from .sheet_estimate import HELP
+from .sheet_estimate import HELP, clean_method_and_shape
 
 # Larger whole numbers are refused as typing errors (a sheet column has 1,048,576 rows).
 _LARGEST_COUNT = 10**9
@@ -61,12 +60,7 @@ class _Request:
 
 
 def _request(threshold, accuracy, confidence, method, shape) -> _Request:
-    name = cells.method_name(method, METHOD_NAMES)
-    shape_value = None
-    if name == "known-shape":
-        if cells.is_missing(shape):
-            raise cells.InputError("known-shape needs the gamma shape (the shape argument)")
-        shape_value = cells.positive(shape, "shape")
+    name, shape_value = clean_method_and_shape(method, shape)
     return _Request(cells.positive(threshold, "threshold"), cells.accuracy(accuracy), cells.confidence(confidence),
                     name, shape_value)
 

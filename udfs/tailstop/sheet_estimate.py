@@ -33,7 +33,7 @@ def clean_method_and_shape(method, shape):
     name = cells.method_name(method, METHOD_NAMES)
     if name == "known-shape":
         if cells.is_missing(shape):
-            raise cells.InputError("known-shape needs the gamma shape as the last argument")
+            raise cells.InputError("known-shape needs the gamma shape (the shape argument)")
         return name, cells.positive(shape, "shape")
     return name, None
 
