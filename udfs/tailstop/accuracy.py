@@ -39,7 +39,8 @@ def critical_value(confidence):
 def units_for_accuracy(sigma2, accuracy, confidence):
     """n* = (z / log d)² σ² — real-valued; see ``whole_units`` for the count."""
     z = critical_value(confidence)
-    return (z / np.log(np.asarray(accuracy, dtype=float))) ** 2 * np.asarray(sigma2, dtype=float)
+    with np.errstate(over="ignore", invalid="ignore"):
+        return (z / np.log(np.asarray(accuracy, dtype=float))) ** 2 * np.asarray(sigma2, dtype=float)
 
 
 def whole_units(n_star):

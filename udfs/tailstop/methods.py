@@ -304,4 +304,5 @@ def pass_fail_sigma2_from_p(p):
     p = np.asarray(p, dtype=float)
     if not np.all((p > 0) & (p < 1)):
         raise ValueError("the guessed probability must be strictly between 0 and 1")
-    return 1.0 / (p * (1.0 - p))
+    with np.errstate(over="ignore"):
+        return 1.0 / (p * (1.0 - p))  # inf for p within a few doubles of 0: no finite plan

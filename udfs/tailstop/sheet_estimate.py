@@ -145,7 +145,8 @@ def unit_count(n_star) -> int:
     """ceil(n*) as a whole number of units, refused when it is beyond any test."""
     units = float(_accuracy.whole_units(n_star))
     if not units <= LARGEST_UNIT_COUNT:
-        raise cells.InputError(f"this needs about {units:.3g} units, more than any test can run; "
+        amount = f"about {units:.3g} units" if np.isfinite(units) else "more units than a number can hold"
+        raise cells.InputError(f"this needs {amount}, more than any test can run; "
                                "ask for a larger accuracy factor or choose a threshold nearer the typical life")
     return int(units)
 
