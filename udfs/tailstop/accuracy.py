@@ -67,7 +67,8 @@ def odds_interval(log_odds, accuracy) -> Interval:
     """[q̂/d, q̂·d] from log q̂."""
     log_d = np.log(np.asarray(accuracy, dtype=float))
     log_odds = np.asarray(log_odds, dtype=float)
-    return Interval(low=np.exp(log_odds - log_d), high=np.exp(log_odds + log_d))
+    with np.errstate(over="ignore"):  # odds beyond 1e308 are inf
+        return Interval(low=np.exp(log_odds - log_d), high=np.exp(log_odds + log_d))
 
 
 def probability_interval(log_odds, accuracy) -> Interval:
