@@ -47,7 +47,7 @@ def summary(result) -> str:
     unit = scenario.UNIT
     lines = [f"tailstop demo - solenoid valves on a cycling bench (invented data), warranty limit "
              f"{plan.threshold:g} {unit}",
-             f"  log: {result.units} valves tested; rule {plan.describe()}"]
+             f"  log: {result.units} valve results on file; rule {plan.describe()}"]
     if analysis.stopped:
         row = log.first_row + analysis.stop_offset
         lines.append(f"  decision: STOP after valve {analysis.units_used} (Log row {row}); "
