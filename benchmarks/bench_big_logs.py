@@ -74,7 +74,8 @@ def write_log(path, rows):
     book = openpyxl.Workbook(write_only=True)
     sheet = book.create_sheet("Log")
     sheet.append(["Unit", "Hours"])
-    for unit, value in enumerate(np.random.default_rng(1).gamma(2.0, 500.0, size=rows - 1), start=1):
+    # hours to one decimal, as a log records them
+    for unit, value in enumerate(np.round(np.random.default_rng(1).gamma(2.0, 500.0, size=rows - 1), 1), start=1):
         sheet.append([unit, float(value)])
     book.save(path)
 
