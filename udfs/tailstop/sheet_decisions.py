@@ -124,6 +124,16 @@ def STOP_DECISION_COLUMN(observations, threshold, accuracy, confidence, pilot, m
     return [[label] for label in column.tolist()]
 
 
+def _units_so_far(values, request, name, subject) -> cells.LogCells:
+    """Every unit of the range, refused whole on a bad cell or with fewer than MIN_PILOT units."""
+    log = _read_log(values, request, name, single_column=False)
+    if log.problem is not None:
+        raise cells.InputError(log.problem)
+    if log.values.size < MIN_PILOT:
+        raise cells.InputError(f"{subject} at least {MIN_PILOT} units (found {log.values.size})")
+    return log
+
+
 @formula(
     ranges=("observations",), observations=HELP_DECISIONS["units_so_far"],
     threshold=HELP["threshold"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
@@ -132,11 +142,7 @@ def STOP_DECISION_COLUMN(observations, threshold, accuracy, confidence, pilot, m
 def UNITS_NEEDED_NOW(observations, threshold, accuracy, confidence, method=None, shape=None):
     """Units the accuracy needs by the current estimate, (z/log d)^2 times the variance from all units so far, rounded up."""
     request = _request(threshold, accuracy, confidence, method, shape)
-    log = _read_log(observations, request, single_column=False)
-    if log.problem is not None:
-        raise cells.InputError(log.problem)
-    if log.values.size < MIN_PILOT:
-        raise cells.InputError(f"needs at least {MIN_PILOT} units (found {log.values.size})")
+    log = _units_so_far(observations, request, "observations", "needs")
     return units_needed_now(log.values, request.threshold, request.accuracy, request.confidence, request.method,
                             request.shape, survivors=_survivors(log)).whole
 
@@ -149,10 +155,6 @@ def UNITS_NEEDED_NOW(observations, threshold, accuracy, confidence, method=None,
 def TWO_STAGE_UNITS(pilot_observations, threshold, accuracy, confidence, method=None, shape=None):
     """Total units to test in a two-stage plan (pilot included), from the pilot's results."""
     request = _request(threshold, accuracy, confidence, method, shape)
-    log = _read_log(pilot_observations, request, "pilot_observations", single_column=False)
-    if log.problem is not None:
-        raise cells.InputError(log.problem)
-    if log.values.size < MIN_PILOT:
-        raise cells.InputError(f"the pilot needs at least {MIN_PILOT} units (found {log.values.size})")
+    log = _units_so_far(pilot_observations, request, "pilot_observations", "the pilot needs")
     return two_stage_plan(log.values, request.threshold, request.accuracy, request.confidence, request.method,
                           request.shape, survivors=_survivors(log)).total_units
