@@ -123,7 +123,8 @@ def save_with_cached_values(book, target, cached, *, in_place=False, backup=True
     -------
     SaveResult
     """
-    book.calculation.fullCalcOnLoad = False
+    if book.calculation is not None:  # a book read without <calcPr> has none
+        book.calculation.fullCalcOnLoad = False
     saved = io.BytesIO()
     book.save(saved)
     by_sheet = _group_by_sheet(cached)
