@@ -61,7 +61,8 @@ from .workbooks.package import GRID_COLUMNS, WorkbookRefused
 from .workbooks.row_cells import append_to_sheet
 from .workbooks.safe_io import open_workbook_safely, resolve_column, write_file_atomically
 
-__all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "summary", "add_arguments", "run"]
+__all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "summary", "add_arguments", "run",
+           "check_log_column"]
 
 OUTPUT_SUFFIX = "-tailstop"
 BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
@@ -90,6 +91,10 @@ class AnnotateResult:
     losses : list of str
         What was given up with ``allow_lossy`` (empty otherwise).
     live : bool
+    copied_parts : int or None
+        For a long log edited as bytes (``annotate_stream``): the parts of the
+        package copied unchanged (checked by size and CRC); ``cells_checked``
+        then counts the log sheet's cells. None when the book went through openpyxl.
     """
 
     path: Path
@@ -102,6 +107,7 @@ class AnnotateResult:
     sheets_checked: int
     losses: list
     live: bool
+    copied_parts: int | None = None
 
 
 def default_output(source) -> Path:
@@ -111,7 +117,7 @@ def default_output(source) -> Path:
 
 
 def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=False, backup=True, live=False,
-             allow_lossy=False) -> AnnotateResult:
+             allow_lossy=False, streaming=None) -> AnnotateResult:
     """Add the decision column and the estimate block to a test log and write the result.
 
     Parameters
@@ -133,6 +139,11 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     allow_lossy : bool
         Go on although openpyxl would drop some content of the book; the
         losses are listed in the result.
+    streaming : bool, optional
+        Edit the book as bytes instead of loading it (``annotate_stream``).
+        Default: when the log's sheet is long (``STREAM_FROM_BYTES``) and its
+        markup allows it; the openpyxl path otherwise. True insists
+        (``AnnotateRefused`` if the markup does not allow it); False never streams.
 
     Raises
     ------
@@ -141,6 +152,16 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     """
     source = Path(source)
     target = _target(source, out, in_place)
+    if streaming is not False:
+        from . import annotate_stream
+
+        if streaming or annotate_stream.wants_streaming(source, sheet):
+            try:
+                return annotate_stream.annotate_streamed(source, target, column=column, plan=plan, sheet=sheet,
+                                                         in_place=in_place, backup=backup, live=live)
+            except annotate_stream.NotStreamable as reason:
+                if streaming:
+                    raise AnnotateRefused(f"{source.name} cannot be edited as a stream: {reason}") from None
     book = open_workbook_safely(source, allow_lossy=allow_lossy)
     losses = [str(loss) for loss in book.tailstop_report.losses]
     losses += _hidden_values(source, book, allow_lossy)
@@ -231,14 +252,18 @@ def _log_column(worksheet, column):
         raise AnnotateRefused(f"sheet {worksheet.title!r}: {problem}") from None
     log, values = read_log_range(worksheet, number)
     header = worksheet._cells.get((1, number))
-    header_value = None if header is None else header.value
+    check_log_column(log, None if header is None else header.value)
+    return log, values
+
+
+def check_log_column(log, header_value):
+    """Refuse a log column without a header or without a log."""
     if isinstance(header_value, (int, float)) and not isinstance(header_value, bool):
         raise AnnotateRefused(f"{log.address(1)} holds {header_value:g}: row 1 must hold the column's header, "
                               "with the log from row 2 down; insert a header row")
     if log.rows == 0:
         raise AnnotateRefused(f"{log.address(2)} and the rows below are empty: no log to annotate in column "
-                              f"{log.letter} of sheet {worksheet.title!r}")
-    return log, values
+                              f"{log.letter} of sheet {log.sheet_title!r}")
 
 
 def _rows_written_anyway(log, values, layout):
@@ -367,8 +392,13 @@ def summary(result: AnnotateResult) -> str:
     column = f"{sheet_reference(log.sheet_title)}!{get_column_letter(result.decision_column)}"
     mode = "tailstop formulas with cached values" if result.live else "values"
     lines.append(f"  wrote: decision column {column} ({DECISION_HEADER!r}), estimate block {result.block}, as {mode}")
-    lines.append(f"  checked: all {result.cells_checked:,} cells of {result.sheets_checked} sheet"
-                 f"{'s' if result.sheets_checked != 1 else ''} kept their values and formulas")
+    if result.copied_parts is None:
+        lines.append(f"  checked: all {result.cells_checked:,} cells of {result.sheets_checked} sheet"
+                     f"{'s' if result.sheets_checked != 1 else ''} kept their values and formulas")
+    else:
+        lines.append(f"  checked: all {result.cells_checked:,} cells of {sheet_reference(log.sheet_title)} kept "
+                     f"their values and formulas; the other {result.copied_parts} parts of the book are copied "
+                     "unchanged (long log: edited as a stream)")
     if result.backup is not None:
         lines.append(f"  backup of the original: {result.backup}")
     for loss in result.losses:

@@ -73,6 +73,11 @@ __all__ = [
     "differences",
     "collector_paused",
     "sheet_reference",
+    "read_package",
+    "package_parts",
+    "SliceReader",
+    "raw_value",
+    "same_cells",
 ]
 
 _MAIN = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
@@ -615,6 +620,71 @@ def _parsed_sheet_cells(xml, package):
             if entry is not None:
                 cells[cell_key(cell["row"], cell["column"])] = entry
     return cells
+
+
+# --------------------------------------------------------------------------- slices of any sheet
+
+
+def read_package(archive):
+    """Sheet titles, worksheet parts, shared strings, date styles and epoch of an open .xlsx zip."""
+    return _read_package(archive)
+
+
+def package_parts(archive):
+    """(workbook element, sheet titles in order, worksheet title -> part, [(relationship type, part)])."""
+    return _package_parts(archive)
+
+
+class SliceReader:
+    """Reads the cells of consecutive slices of one sheet's rows, each slice starting at a ``<row`` element.
+
+    The fast reader takes the slices whose markup it recognises; any other
+    slice is read by openpyxl's own sheet parser, wrapped in the sheet's own
+    ``<worksheet>`` start tag (which declares the namespaces its rows use).
+    Cells must come in increasing order across slices, as in any sheet.
+    """
+
+    def __init__(self, package, root_tag: bytes):
+        self.package = package
+        self.root = root_tag
+        self.columns = {}
+        self.date_styles = {str(style).encode(): style in package.timedelta_styles for style in package.date_styles}
+        self.last = [0]
+        self.parsed_slices = 0
+
+    def cells(self, piece: bytes) -> dict:
+        """{cell key: canonical} of the non-empty cells of one slice."""
+        cells = {}
+        with collector_paused():
+            try:
+                _read_chunk(piece, cells, False, self.columns, self.date_styles, self.package, self.last)
+                return cells
+            except _NotOpenpyxlMarkup:
+                pass
+            xml = self.root + b"<sheetData>" + piece + b"</sheetData></worksheet>"
+            cells = _parsed_sheet_cells(xml, self.package)
+        self.parsed_slices += 1
+        if cells:
+            self.last[0] = max(self.last[0], max(cells))
+        return cells
+
+
+def raw_value(entry):
+    """The value openpyxl's load gives a cell (``cell._value``) for a canonical entry."""
+    if not isinstance(entry, tuple):
+        return entry
+    if entry[0] in ("b", "e", "f"):
+        return entry[1]
+    if entry[0] == "a":
+        return entry[2]
+    return "="  # a data-table formula: text the log reader refuses
+
+
+def same_cells(expected: dict, actual: dict) -> bool:
+    """Both tables hold the same cells, each of the same kind (see ``differences``)."""
+    if expected.keys() != actual.keys():
+        return False
+    return all(_same(value, actual[key]) for key, value in expected.items())
 
 
 # --------------------------------------------------------------------------- comparing

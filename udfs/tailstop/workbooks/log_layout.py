@@ -50,6 +50,11 @@ __all__ = [
     "analyse_log",
     "block_layout",
     "write_decision_column",
+    "write_decision_header",
+    "highlight_stop",
+    "decision_rule",
+    "decision_formula",
+    "decision_cell",
     "write_estimate_block",
     "set_width",
     "HEADER_FONT",
@@ -548,39 +553,70 @@ def write_decision_column(sheet, log: LogRange, column: int, analysis: LogAnalys
     dict
         row -> (cell markup, canonical content) for the rows in ``as_markup``.
     """
-    letter = get_column_letter(column)
-    head = sheet.cell(log.first_row - 1, column, header)
-    head.font, head.fill = HEADER_FONT, HEADER_FILL
-    rule = None
-    if live:
-        a = layout.absolute
-        rule = (f"{a('threshold')},{a('accuracy')},{a('confidence')},{a('pilot')},{a('method')},{a('shape')},"
-                f"{a('check_every')}")
+    write_decision_header(sheet, log, column, header)
+    rule = decision_rule(layout) if live else None
     as_markup = set(as_markup)
     markup = {}
     texts = []
     for offset, decision in enumerate(analysis.decisions):
         row = log.first_row + offset
-        coordinate = f"{letter}{row}"
-        if live:
-            formula = f"=STOP_DECISION({log.growing_reference(row)},{rule})"
-            if row in as_markup:
-                markup[row] = (row_cells.formula_cell(coordinate, formula, decision), ("f", formula))
-            else:
-                set_formula(sheet, coordinate, formula, decision, cached)
-        elif row in as_markup:
-            if decision:
-                markup[row] = (row_cells.text_cell(coordinate, decision), decision)
-            texts.append("")
+        if row in as_markup:
+            cell, content = decision_cell(log, column, row, decision, rule)
+            if cell is not None:
+                markup[row] = (cell, content)
+            if not live:
+                texts.append("")
             continue
-        texts.append(decision)
+        if live:
+            set_formula(sheet, f"{get_column_letter(column)}{row}", decision_formula(log, row, rule), decision,
+                        cached)
+        else:
+            texts.append(decision)
     if not live:
         _write_texts(sheet, column, log.first_row, texts)
+    highlight_stop(sheet, log, column)
+    return markup
+
+
+def write_decision_header(sheet, log: LogRange, column: int, header: str = DECISION_HEADER):
+    """The decision column's header cell, in the row above the log."""
+    head = sheet.cell(log.first_row - 1, column, header)
+    head.font, head.fill = HEADER_FONT, HEADER_FILL
+
+
+def highlight_stop(sheet, log: LogRange, column: int):
+    """The conditional format that shows the STOP cell of the decision column."""
     if log.rows > 0:
+        letter = get_column_letter(column)
         target = f"{letter}{log.first_row}:{letter}{log.last_row}"
         sheet.conditional_formatting.add(target, CellIsRule(operator="equal", formula=['"STOP"'], fill=STOP_FILL,
                                                             font=Font(bold=True)))
-    return markup
+
+
+def decision_rule(layout: BlockLayout) -> str:
+    """The rule's arguments of a live decision cell: the settings cells of the block."""
+    a = layout.absolute
+    return (f"{a('threshold')},{a('accuracy')},{a('confidence')},{a('pilot')},{a('method')},{a('shape')},"
+            f"{a('check_every')}")
+
+
+def decision_formula(log: LogRange, row: int, rule: str) -> str:
+    """``=STOP_DECISION($B$2:B<row>, <rule>)``: the live decision of one row."""
+    return f"=STOP_DECISION({log.growing_reference(row)},{rule})"
+
+
+def decision_cell(log: LogRange, column: int, row: int, decision: str, rule: str | None = None):
+    """Markup and canonical content of one unstyled decision cell (``rule`` given: a live formula).
+
+    Returns ``(None, None)`` for a values-mode row without a decision (no cell).
+    """
+    coordinate = f"{get_column_letter(column)}{row}"
+    if rule is not None:
+        formula = decision_formula(log, row, rule)
+        return row_cells.formula_cell(coordinate, formula, decision), ("f", formula)
+    if decision:
+        return row_cells.text_cell(coordinate, decision), decision
+    return None, None
 
 
 def _write_texts(sheet, column, first_row, texts):

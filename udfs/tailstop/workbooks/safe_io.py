@@ -35,6 +35,7 @@ __all__ = [
     "save_workbook_atomically",
     "write_file_atomically",
     "resolve_column",
+    "column_from_headers",
     "iter_column_values",
 ]
 
@@ -153,7 +154,7 @@ def save_workbook_atomically(book, target, *, in_place=False, backup=True):
     return write_file_atomically(target, book.save, in_place=in_place, backup=backup)
 
 
-def write_file_atomically(target, write, *, in_place=False, backup=True):
+def write_file_atomically(target, write, *, in_place=False, backup=True, check=None):
     """Run ``write(handle)`` into a temporary file beside ``target``, then move it into place.
 
     Parameters
@@ -164,6 +165,9 @@ def write_file_atomically(target, write, *, in_place=False, backup=True):
         Called with a binary file handle open for writing.
     in_place, backup : bool
         As for ``save_workbook_atomically``.
+    check : callable, optional
+        Called with the temporary file's path once it is written and synced;
+        an exception from it removes the temporary file and moves nothing.
 
     Returns
     -------
@@ -176,6 +180,8 @@ def write_file_atomically(target, write, *, in_place=False, backup=True):
         raise FileExistsError(f"{target} exists; choose a new name or ask for in-place saving")
     temporary = _write_temporary(target, write)
     try:
+        if check is not None:
+            check(temporary)
         os.chmod(temporary, _mode_for(target))
         kept = _backup(target) if (in_place and backup and target.exists()) else None
         _move_into_place(temporary, target, replace=in_place)
@@ -286,11 +292,18 @@ def resolve_column(sheet, key, *, header_row=1):
         both a header text and a different column's letter.
     """
     if isinstance(key, int) and not isinstance(key, bool):
+        return column_from_headers({}, key)
+    return column_from_headers(_header_texts(sheet, header_row), key)
+
+
+def column_from_headers(values: dict, key) -> int:
+    """``resolve_column`` for a header row given as {column number: value} (values as openpyxl reads them)."""
+    if isinstance(key, int) and not isinstance(key, bool):
         if not 1 <= key <= GRID_COLUMNS:
             raise ValueError(f"column number must be 1 to {GRID_COLUMNS} (got {key})")
         return key
     text = str(key).strip()
-    headers = _header_texts(sheet, header_row)
+    headers = {number: str(value).strip() for number, value in sorted(values.items()) if value is not None}
     matches = [number for number, header in headers.items() if header.casefold() == text.casefold()]
     letter = column_number(text) if _LETTERS.fullmatch(text) else None
     if letter is not None and letter > GRID_COLUMNS:
