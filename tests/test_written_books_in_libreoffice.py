@@ -12,12 +12,14 @@ import math
 
 import openpyxl
 import pytest
+from openpyxl.utils.cell import get_column_letter
 
 from libreoffice import LibreOfficeFailed, convert_with_libreoffice, find_soffice
 from tailstop.annotate import annotate
 from tailstop.workbooks.cached_values import EXCEL_ERRORS
 from tailstop.workbooks.demo_books import LOG_BOOK, PLAN_BOOK, build_demo
-from test_annotate import LOG_SHEET, plan, rich_log
+from test_annotate import LOG_SHEET, bench_lifetimes, plan, rich_log
+from test_annotate_stream import excel_like_book
 
 
 @pytest.fixture(scope="module")
@@ -108,10 +110,12 @@ def test_the_demo_charts_survive(soffice, demo_folder, tmp_path):
     assert [len(chart.series) for chart in charts] == [5, 3]
 
 
+@pytest.mark.parametrize("streaming", [False, True], ids=["openpyxl", "streamed"])
 @pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
-def test_annotated_logs_open_cleanly_and_keep_their_values(soffice, tmp_path, live):
+def test_annotated_logs_open_cleanly_and_keep_their_values(soffice, tmp_path, live, streaming):
     source = rich_log(tmp_path / "bench.xlsx")
-    result = annotate(source, column="D", plan=plan(), live=live, out=tmp_path / "annotated.xlsx")
+    result = annotate(source, column="D", plan=plan(), live=live, out=tmp_path / "annotated.xlsx",
+                      streaming=streaming)
     shown = shown_by_libreoffice(result.path, tmp_path / "lo")
     # the log's own error cell (Notes!A6 holds #N/A) stays; nothing else is an error
     assert error_cells(shown) == error_cells(openpyxl.load_workbook(source)) == [("Notes", "A6", "#N/A")]
@@ -125,3 +129,17 @@ def test_annotated_logs_open_cleanly_and_keep_their_values(soffice, tmp_path, li
     for row in (2, 50, 100):  # the user's own formulas, computed by LibreOffice
         assert original[f"E{row}"].value == f"=D{row}*2"
         assert shown[LOG_SHEET][f"E{row}"].value == pytest.approx(2 * original[f"D{row}"].value)
+
+
+def test_a_streamed_book_in_excel_markup_opens_cleanly(soffice, tmp_path):
+    # the byte editor on markup laid out as Excel writes it (shared strings and formulas, x14ac row attributes)
+    lifetimes = bench_lifetimes(60, seed=7)
+    source = excel_like_book(tmp_path / "excel.xlsx", lifetimes)
+    result = annotate(source, column="B", plan=plan(threshold=1200), out=tmp_path / "annotated.xlsx", streaming=True)
+    shown = shown_by_libreoffice(result.path, tmp_path / "lo")
+    assert error_cells(shown) == []
+    written = openpyxl.load_workbook(result.path, data_only=True)
+    assert assert_values_survive(written, shown) > 200
+    sheet = openpyxl.load_workbook(convert_with_libreoffice(result.path, tmp_path / "lo2"))["Hours"]
+    assert [str(cf.sqref) for cf in sheet.conditional_formatting] == [f"{get_column_letter(result.decision_column)}2:"
+                                                                      f"{get_column_letter(result.decision_column)}61"]

@@ -1,0 +1,471 @@
+"""Add cells to one worksheet of an .xlsx package without loading the book: the path for long logs.
+
+openpyxl builds every cell of a sheet as a Python object; a full-sheet log
+(1,048,576 rows) takes about a gigabyte that way before anything is added.
+``tailstop annotate`` therefore edits long logs as bytes instead:
+
+* every part of the package other than the log's worksheet and the style
+  sheet is copied unchanged (same inflated bytes, so same CRC);
+* the worksheet keeps every byte of its rows; the new cells are appended at
+  the end of their rows (they lie right of every cell of the sheet, so the
+  cells of a row stay in column order), rows that do not exist yet are
+  inserted in row order, and three small elements change: the ``<dimension>``
+  reference, ``<cols>`` (the widths of the new columns) and one new
+  ``<conditionalFormatting>`` element at its place in the schema order;
+* the style sheet gets the new fonts, fills, number formats, cell formats
+  and the one differential format appended after the existing ones, so no
+  existing style index changes.
+
+Only markup this module understands is edited this way (``NotStreamable``
+otherwise, and the caller takes the openpyxl path): a worksheet and a style
+sheet in the default SpreadsheetML namespace, rows in increasing order, every
+row and cell with its reference, no comments or CDATA among the rows.
+
+Everything is read in slices that start at a ``<row`` element, so memory
+stays near the size of the sheet's XML, not of a cell model.
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from xml.sax.saxutils import escape
+
+from openpyxl.utils.cell import column_index_from_string, get_column_letter
+
+__all__ = [
+    "NotStreamable",
+    "SheetXml",
+    "split_sheet",
+    "row_slices",
+    "aligned_slices",
+    "SheetShape",
+    "StylesEdit",
+    "cell_markup",
+    "extended_rows",
+    "edit_head",
+    "edit_tail",
+    "MAIN_NAMESPACE",
+]
+
+MAIN_NAMESPACE = b"http://schemas.openxmlformats.org/spreadsheetml/2006/main"
+SLICE_BYTES = 2**21
+
+_ROOT = re.compile(rb"<worksheet\b[^>]*>")
+_DEFAULT_NS = re.compile(rb'\sxmlns="([^"]*)"')
+_SHEET_DATA = re.compile(rb"<sheetData\s*(/?)>")
+_ROW_TAG = re.compile(rb"<row\b([^>]*?)(/?)>")
+_ROW_NUMBER = re.compile(rb'\br="([0-9]+)"')
+_SPANS = re.compile(rb'\sspans="[^"]*"')
+_CELL_START = re.compile(rb"<c[\s/>]")
+_CELL_COLUMN = re.compile(rb'<c r="([A-Z]{1,3})[0-9]')
+_MERGE = re.compile(rb'<mergeCell\b[^>]*?\bref="([A-Z]{1,3})[0-9]+(?::([A-Z]{1,3})[0-9]+)?"')
+_DIMENSION = re.compile(rb'(<dimension\b[^>]*?\bref=")([^"]*)(")')
+_COLS = re.compile(rb"<cols>(.*?)</cols>|<cols\s*/>", re.S)
+_COL = re.compile(rb"<col\b[^>]*?/>|<col\b[^>]*?>.*?</col>", re.S)
+_MIN = re.compile(rb'\bmin="([0-9]+)"')
+_MAX = re.compile(rb'\bmax="([0-9]+)"')
+_PRIORITY = re.compile(rb'\bpriority="([0-9]+)"')
+# worksheet children that come after <conditionalFormatting> (ECMA-376 Part 1, CT_Worksheet sequence)
+_AFTER_CONDITIONAL_FORMATS = (b"dataValidations", b"hyperlinks", b"printOptions", b"pageMargins", b"pageSetup",
+                              b"headerFooter", b"rowBreaks", b"colBreaks", b"customProperties", b"cellWatches",
+                              b"ignoredErrors", b"smartTags", b"drawing", b"legacyDrawing", b"legacyDrawingHF",
+                              b"picture", b"oleObjects", b"controls", b"webPublishItems", b"tableParts", b"extLst")
+_LATER_TAIL = re.compile(rb"<(?:" + b"|".join(_AFTER_CONDITIONAL_FORMATS) + rb")[\s/>]|</worksheet>")
+
+
+class NotStreamable(Exception):
+    """The markup is not one this module edits; take the openpyxl path."""
+
+
+@dataclass(frozen=True)
+class SheetXml:
+    """A worksheet part cut around its rows.
+
+    ``head + region + tail`` is the part (with ``<sheetData/>`` opened into
+    ``<sheetData></sheetData>``); ``root`` is the ``<worksheet …>`` start tag,
+    which declares the namespaces the rows may use.
+    """
+
+    root: bytes
+    head: bytes
+    region: bytes
+    tail: bytes
+
+
+def split_sheet(xml: bytes) -> SheetXml:
+    """Cut a worksheet part into head, rows and tail; ``NotStreamable`` for markup this module does not edit."""
+    root = _ROOT.search(xml, 0, 4096)
+    namespace = _DEFAULT_NS.search(root.group(0)) if root else None
+    if namespace is None or namespace.group(1) != MAIN_NAMESPACE:
+        raise NotStreamable("the worksheet does not use the default SpreadsheetML namespace")
+    found = list(_SHEET_DATA.finditer(xml))
+    if len(found) != 1:
+        raise NotStreamable("the worksheet has no single <sheetData> element")
+    start = found[0]
+    if start.group(1):
+        head, region, tail = xml[: start.start()] + b"<sheetData>", b"", b"</sheetData>" + xml[start.end():]
+    else:
+        end = xml.find(b"</sheetData>", start.end())
+        if end < 0 or xml.find(b"</sheetData>", end + 1) >= 0:
+            raise NotStreamable("the worksheet's <sheetData> element is not closed once")
+        head, region, tail = xml[: start.end()], xml[start.end(): end], xml[end:]
+    if b"<!" in region:
+        raise NotStreamable("comments or CDATA among the rows")
+    return SheetXml(root.group(0), head, region, tail)
+
+
+def row_slices(region: bytes, size: int = SLICE_BYTES):
+    """``(offset, slice)`` of the rows region, each slice starting at a ``<row`` element."""
+    start = 0
+    while start < len(region):
+        cut = region.find(b"<row", start + size)
+        end = len(region) if cut < 0 else cut
+        yield start, region[start:end]
+        start = end
+
+
+def _row_number(attributes):
+    found = _ROW_NUMBER.search(attributes)
+    if found is None:
+        raise NotStreamable("a row without its row number")
+    return int(found.group(1))
+
+
+def first_row_of(piece: bytes):
+    """The row number of the first ``<row`` element of a slice (None if it has none)."""
+    found = _ROW_TAG.search(piece)
+    return None if found is None else _row_number(found.group(1))
+
+
+def aligned_slices(old_region: bytes, new_region: bytes, size: int = SLICE_BYTES):
+    """Pairs of slices of two rows regions that hold the same rows.
+
+    The old region is cut at ``<row`` elements every ``size`` bytes; the new
+    one is cut before the same row numbers (rows inserted in the new region
+    fall into the slice of their row range).
+
+    Yields
+    ------
+    (old slice, new slice, first row, next slice's first row or None)
+    """
+    cuts = [(offset, first_row_of(piece)) for offset, piece in row_slices(old_region, size)]
+    new_offsets = []
+    rows = _ROW_TAG.finditer(new_region)
+    for _, row in cuts[1:]:
+        for match in rows:
+            if _row_number(match.group(1)) >= row:
+                new_offsets.append(match.start())
+                break
+        else:
+            new_offsets.append(len(new_region))
+    old_bounds = [offset for offset, _ in cuts] + [len(old_region)]
+    new_bounds = [0] + new_offsets + [len(new_region)]
+    if not cuts:
+        yield b"", new_region, 0, None
+        return
+    for index, (offset, row) in enumerate(cuts):
+        upto = cuts[index + 1][1] if index + 1 < len(cuts) else None
+        yield (old_region[offset: old_bounds[index + 1]], new_region[new_bounds[index]: new_bounds[index + 1]],
+               0 if index == 0 else row, upto)
+
+
+# --------------------------------------------------------------------------- the shape of the sheet
+
+
+@dataclass
+class SheetShape:
+    """What the writer needs to know of the rows: last row, rightmost cell, and that rows are in order."""
+
+    max_row: int = 0
+    max_column: int = 0
+    cells: int = 0
+
+    def take(self, piece: bytes):
+        """Account for one slice of rows (slices in order)."""
+        previous = self.max_row
+        rows = 0
+        for match in _ROW_TAG.finditer(piece):
+            row = _row_number(match.group(1))
+            if row <= previous:
+                raise NotStreamable("rows are not in increasing order")
+            previous = row
+            rows += 1
+        if rows != piece.count(b"<row"):
+            raise NotStreamable("row markup this module does not read")
+        self.max_row = max(self.max_row, previous)
+        letters = set(_CELL_COLUMN.findall(piece))
+        found = len(_CELL_START.findall(piece))
+        if found != piece.count(b"<c r=\""):
+            raise NotStreamable("a cell without its reference")
+        self.cells += found
+        if letters:
+            self.max_column = max(self.max_column, max(column_index_from_string(text.decode()) for text in letters))
+
+    def take_merges(self, tail: bytes):
+        """Merged ranges count as occupied up to their right edge (openpyxl's load does the same)."""
+        for first, last in _MERGE.findall(tail):
+            self.max_column = max(self.max_column, column_index_from_string((last or first).decode()))
+
+
+# --------------------------------------------------------------------------- cells and rows
+
+
+def cell_markup(coordinate: str, style: int, data_type: str, value, cached=None) -> bytes:
+    """Markup of one new cell (``style`` 0: no ``s`` attribute).
+
+    ``data_type`` as openpyxl's: 'n' number, 's' text, 'b' boolean, 'f'
+    formula (``value`` starts with '='; ``cached`` is its stored result).
+    """
+    from .cached_values import _serialize  # the same serialisation as the cached-value writer
+
+    attributes = f'<c r="{coordinate}"' + (f' s="{style}"' if style else "")
+    if value is None:
+        return (attributes + "/>").encode()
+    if data_type == "f":
+        kind, text = _serialize(cached)
+        kind_attribute = f' t="{kind.decode()}"' if kind else ""
+        stored = "" if text is None else f"<v>{text.decode('utf-8')}</v>"
+        return f"{attributes}{kind_attribute}><f>{escape(value[1:])}</f>{stored}</c>".encode()
+    if data_type == "s":
+        space = ' xml:space="preserve"' if value != value.strip() else ""
+        return f'{attributes} t="inlineStr"><is><t{space}>{escape(value)}</t></is></c>'.encode()
+    if data_type == "b":
+        return f'{attributes} t="b"><v>{int(bool(value))}</v></c>'.encode()
+    if data_type == "n":
+        text = str(value) if isinstance(value, int) else repr(float(value))
+        return f'{attributes} t="n"><v>{text}</v></c>'.encode()
+    raise ValueError(f"no markup for a {data_type!r} cell")
+
+
+def extended_rows(region: bytes, additions, last_column: int):
+    """The rows region with ``additions`` — ``(row, markup)`` in increasing row order — appended.
+
+    A row that exists gets the markup before its ``</row>`` (a ``spans``
+    hint is widened to ``last_column``); a row that does not is inserted in
+    order. Yields pieces of bytes.
+    """
+    pending = next(additions, None)
+    position = 0
+    for match in _ROW_TAG.finditer(region):
+        if pending is None:
+            break
+        row = _row_number(match.group(1))
+        while pending is not None and pending[0] < row:
+            yield region[position: match.start()]
+            position = match.start()
+            yield b'<row r="%d">' % pending[0] + pending[1] + b"</row>"
+            pending = next(additions, None)
+        if pending is None or pending[0] != row:
+            continue
+        attributes = _widened(match.group(1), last_column)
+        yield region[position: match.start()]
+        if match.group(2):
+            yield b"<row" + attributes + b">" + pending[1] + b"</row>"
+            position = match.end()
+        else:
+            end = region.find(b"</row>", match.end())
+            yield b"<row" + attributes + b">"
+            yield region[match.end(): end]
+            yield pending[1]
+            position = end
+        pending = next(additions, None)
+    yield region[position:]
+    while pending is not None:
+        yield b'<row r="%d">' % pending[0] + pending[1] + b"</row>"
+        pending = next(additions, None)
+
+
+def _widened(attributes, last_column):
+    found = _SPANS.search(attributes)
+    if found is None:
+        return attributes
+    low = found.group(0).split(b'"')[1].split(b":")[0] or b"1"
+    return attributes[: found.start()] + b' spans="%s:%d"' % (low, last_column) + attributes[found.end():]
+
+
+# --------------------------------------------------------------------------- the elements around the rows
+
+
+def edit_head(head: bytes, last_row: int, last_column: int, widths: dict) -> bytes:
+    """The part before the rows with the dimension widened and ``widths`` {column: width} added to ``<cols>``.
+
+    A width is added only where no existing ``<col>`` entry covers the column
+    (the same rule as ``log_layout.set_width``).
+    """
+    head = _DIMENSION.sub(lambda found: found.group(1) + _dimension(found.group(2), last_row, last_column)
+                          + found.group(3), head, count=1)
+    cols = _COLS.search(head)
+    entries = _COL.findall(cols.group(1) or b"") if cols else []
+    spans = [(int(_MIN.search(entry).group(1)), int(_MAX.search(entry).group(1))) for entry in entries
+             if _MIN.search(entry) and _MAX.search(entry)]
+    if len(spans) != len(entries):
+        raise NotStreamable("a column entry without its range")
+    for column, width in widths.items():
+        if not any(low <= column <= high for low, high in spans):
+            entries.append(b'<col min="%d" max="%d" width="%s" customWidth="1"/>'
+                           % (column, column, repr(float(width)).removesuffix(".0").encode()))
+            spans.append((column, column))
+    ordered = b"".join(entry for _, entry in sorted(zip(spans, entries), key=lambda pair: pair[0]))
+    if cols:
+        return head[: cols.start()] + b"<cols>" + ordered + b"</cols>" + head[cols.end():]
+    if not ordered:
+        return head
+    at = head.rfind(b"<sheetData")
+    return head[:at] + b"<cols>" + ordered + b"</cols>" + head[at:]
+
+
+def _dimension(reference, last_row, last_column):
+    corners = reference.split(b":")
+    match = re.fullmatch(rb"\$?([A-Z]{1,3})\$?([0-9]+)", corners[-1])
+    if match is None:
+        raise NotStreamable("a dimension reference this module does not read")
+    column = max(column_index_from_string(match.group(1).decode()), last_column)
+    row = max(int(match.group(2)), last_row)
+    return corners[0] + b":" + get_column_letter(column).encode() + str(row).encode()
+
+
+def edit_tail(tail: bytes, conditional_format: bytes) -> bytes:
+    """The part after the rows with one ``<conditionalFormatting>`` element inserted at its place."""
+    found = _LATER_TAIL.search(tail)
+    if found is None:
+        raise NotStreamable("the worksheet does not end with </worksheet>")
+    return tail[: found.start()] + conditional_format + tail[found.start():]
+
+
+def next_priority(tail: bytes) -> int:
+    """A conditional-format priority above every existing one."""
+    return max((int(value) for value in _PRIORITY.findall(tail)), default=0) + 1
+
+
+def conditional_format(sqref: str, dxf_id: int, priority: int, operator: str, formula: str) -> bytes:
+    """A ``cellIs`` conditional format over ``sqref``."""
+    return (f'<conditionalFormatting sqref="{sqref}"><cfRule type="cellIs" dxfId="{dxf_id}" priority="{priority}" '
+            f'operator="{operator}"><formula>{escape(formula)}</formula></cfRule></conditionalFormatting>').encode()
+
+
+# --------------------------------------------------------------------------- the style sheet
+
+
+_STYLES_ROOT = re.compile(rb"<styleSheet\b[^>]*>")
+_CUSTOM_FORMAT_IDS = re.compile(rb'<numFmt\b[^>]*?\bnumFmtId="([0-9]+)"')
+_AFTER_DXFS = re.compile(rb"<tableStyles[\s/>]|<colors[\s/>]|<extLst[\s/>]|</styleSheet>")
+FIRST_CUSTOM_FORMAT = 164  # ids below are built in (ECMA-376 Part 1, 18.8.30)
+
+
+class StylesEdit:
+    """Append cell formats and differential formats to a style sheet's XML; existing indexes stay.
+
+    Parameters
+    ----------
+    xml : bytes
+        The ``styles.xml`` part.
+    builtin_formats : dict
+        Number format code -> built-in id (openpyxl's ``BUILTIN_FORMATS_REVERSE``).
+    """
+
+    def __init__(self, xml: bytes, builtin_formats: dict):
+        root = _STYLES_ROOT.search(xml, 0, 4096)
+        namespace = _DEFAULT_NS.search(root.group(0)) if root else None
+        if namespace is None or namespace.group(1) != MAIN_NAMESPACE:
+            raise NotStreamable("the style sheet does not use the default SpreadsheetML namespace")
+        self.xml = xml
+        self.builtin = builtin_formats
+        self.counts = {name: self._count(name, child) for name, child in
+                       ((b"fonts", b"font"), (b"fills", b"fill"), (b"borders", b"border"), (b"cellXfs", b"xf"),
+                        (b"cellStyleXfs", b"xf"), (b"dxfs", b"dxf"))}
+        for required in (b"fonts", b"fills", b"borders", b"cellXfs"):
+            if not self.counts[required]:
+                raise NotStreamable(f"the style sheet has no {required.decode()}")
+        self.added = {b"fonts": [], b"fills": [], b"cellXfs": [], b"dxfs": [], b"numFmts": []}
+        self.formats = {}
+        self.next_format = max([FIRST_CUSTOM_FORMAT - 1] + [int(v) for v in _CUSTOM_FORMAT_IDS.findall(xml)]) + 1
+        self.cell_formats = {}
+
+    def _section(self, name):
+        found = re.search(rb"<" + name + rb"\b[^>]*?(?:/>|>(.*?)</" + name + rb">)", self.xml, re.S)
+        return found
+
+    def _count(self, name, child):
+        found = self._section(name)
+        if found is None:
+            return 0
+        return len(re.findall(rb"<" + child + rb"[\s/>]", found.group(1) or b""))
+
+    def cell_format(self, font: bytes | None, fill: bytes | None, number_format: str) -> int:
+        """The index of a new cell format (``xf``) with this font and fill markup and number format code.
+
+        None for the font or the fill means the book's first (default) one.
+        """
+        key = (font, fill, number_format)
+        if key in self.cell_formats:
+            return self.cell_formats[key]
+        font_id = 0 if font is None else self._append(b"fonts", font)
+        fill_id = 0 if fill is None else self._append(b"fills", fill)
+        format_id = self._number_format(number_format)
+        applied = b"".join(flag for flag, used in ((b' applyNumberFormat="1"', format_id != 0),
+                                                   (b' applyFont="1"', font is not None),
+                                                   (b' applyFill="1"', fill is not None)) if used)
+        style = b' xfId="0"' if self.counts[b"cellStyleXfs"] else b""
+        xf = b'<xf numFmtId="%d" fontId="%d" fillId="%d" borderId="0"%s%s/>' % (format_id, font_id, fill_id, style,
+                                                                               applied)
+        index = self._append(b"cellXfs", xf)
+        self.cell_formats[key] = index
+        return index
+
+    def differential_format(self, dxf: bytes) -> int:
+        return self._append(b"dxfs", dxf)
+
+    def _append(self, section, markup):
+        index = self.counts.get(section, 0) + len(self.added[section])
+        self.added[section].append(markup)
+        return index
+
+    def _number_format(self, code):
+        if code in self.builtin:
+            return self.builtin[code]
+        if code not in self.formats:
+            self.formats[code] = self.next_format
+            self.added[b"numFmts"].append(b'<numFmt numFmtId="%d" formatCode="%s"/>'
+                                          % (self.next_format, escape(code, {'"': "&quot;"}).encode()))
+            self.next_format += 1
+        return self.formats[code]
+
+    def result(self) -> bytes:
+        xml = self.xml
+        for section, child in ((b"numFmts", b"numFmt"), (b"fonts", b"font"), (b"fills", b"fill"),
+                               (b"cellXfs", b"xf"), (b"dxfs", b"dxf")):
+            if self.added[section]:
+                xml = _append_children(xml, section, child, b"".join(self.added[section]))
+        return xml
+
+
+def _append_children(xml, section, child, markup):
+    found = re.search(rb"<" + section + rb"\b([^>]*?)(/?)>", xml)
+    if found is None:
+        count = len(re.findall(rb"<" + child + rb"[\s/>]", markup))
+        element = b'<%s count="%d">%s</%s>' % (section, count, markup, section)
+        if section == b"numFmts":
+            at = _STYLES_ROOT.search(xml).end()
+        else:  # dxfs
+            at = _AFTER_DXFS.search(xml).start()
+        return xml[:at] + element + xml[at:]
+    if found.group(2):
+        end_start, end_stop = found.end(), found.end()
+        start_tag = b"<" + section + found.group(1) + b">"
+        closing = b"</" + section + b">"
+        content = b""
+    else:
+        end_start = xml.find(b"</" + section + b">", found.end())
+        end_stop = end_start
+        start_tag = found.group(0)
+        closing = b""
+        content = xml[found.end(): end_start]
+    count = len(re.findall(rb"<" + child + rb"[\s/>]", content + markup))
+    start_tag = _with_count(start_tag, count)
+    return xml[: found.start()] + start_tag + content + markup + closing + xml[end_stop:]
+
+
+def _with_count(start_tag, count):
+    if re.search(rb'\bcount="[0-9]*"', start_tag):
+        return re.sub(rb'\bcount="[0-9]*"', b'count="%d"' % count, start_tag, count=1)
+    return start_tag[:-1] + b' count="%d">' % count
