@@ -605,6 +605,7 @@ class _WorksheetHandler(ContentHandler):
         self.depth = 0
         self.max_row = 0
         self.max_column = 0
+        self.columns = {}  # column letters -> number, for the few distinct columns of a sheet
         self.losses = set()
         self.minor = set()
         self.in_extensions = False
@@ -651,7 +652,8 @@ class _WorksheetHandler(ContentHandler):
         reference = attributes.get("r")
         if reference:
             row, column = self._reference(reference)
-            self._extend(row, column)
+            if row > self.max_row or column > self.max_column:  # inside the rectangle: checked already
+                self._extend(row, column)
         if attributes.get("cm"):
             self.losses.add("dynamic-array formulas (they would become fixed-size array formulas)")
         if attributes.get("vm"):
@@ -666,7 +668,11 @@ class _WorksheetHandler(ContentHandler):
         if not match:
             raise WorkbookRefused(f"{self.scanner.path.name}: {self.part} has an invalid cell reference "
                                   f"{reference[:20]!r}")
-        return int(match.group(2)), column_number(match.group(1))
+        letters = match.group(1)
+        column = self.columns.get(letters)
+        if column is None:
+            column = self.columns[letters] = column_number(letters)
+        return int(match.group(2)), column
 
     def _check_grid(self, row, column):
         if row > GRID_ROWS or column > GRID_COLUMNS:
