@@ -25,6 +25,10 @@ only if every pre-existing cell holds its value and formula, and the added
 cells hold what was meant, is the file written — to a new name unless
 ``in_place`` — through the atomic saver, and the written file is checked to
 be byte for byte what was verified.
+
+Long logs are not loaded at all: ``annotate_stream`` edits the sheet's XML
+as a stream (same cells, same styles), copies every other part unchanged and
+checks the written file slice by slice before it is moved into place.
 """
 from __future__ import annotations
 
