@@ -62,13 +62,28 @@ def test_fit_refuses_non_samples(bad):
         fit_gamma(bad)
 
 
-def test_pvalue_is_scipy_goodness_of_fit_and_is_seeded():
-    # check value: scipy.stats.goodness_of_fit (Anderson-Darling, estimated shape and scale, loc 0)
-    x = np.random.default_rng(9).gamma(3.0, 2.0, size=40)
+@pytest.mark.parametrize("shape, size, seed", [(3.0, 40, 9), (0.4, 25, 3), (60.0, 120, 5), (2.0, 300, 8)])
+def test_pvalue_is_scipy_goodness_of_fit_and_is_seeded(shape, size, seed):
+    # check value: scipy.stats.goodness_of_fit (Anderson-Darling, estimated shape and scale, loc 0), which
+    # refits each simulated sample with scipy's own gamma fit; ours refits with the vectorized ML in batches
+    x = np.random.default_rng(seed).gamma(shape, 2.0, size=size)
     reference = stats.goodness_of_fit(stats.gamma, x, known_params={"loc": 0.0}, statistic="ad",
                                       n_mc_samples=999, rng=np.random.default_rng(20261201))
     assert gamma_fit_pvalue(x) == reference.pvalue
     assert gamma_fit_pvalue(x) == gamma_fit_pvalue(x)
+
+
+def test_the_statistic_and_the_batches_do_not_change_the_pvalue(monkeypatch):
+    import tailstop.fit as fit
+
+    x = np.random.default_rng(2).gamma(1.7, 3.0, size=50)
+    # check value: scipy's Anderson-Darling statistic of goodness_of_fit against the gamma fitted by scipy
+    reference = stats.goodness_of_fit(stats.gamma, x, known_params={"loc": 0.0}, statistic="ad",
+                                      n_mc_samples=99, rng=np.random.default_rng(1))
+    assert fit._anderson_darling(x) == pytest.approx(reference.statistic, rel=1e-9)
+    whole = gamma_fit_pvalue(x)
+    monkeypatch.setattr(fit, "GOF_BATCH_VALUES", 7 * x.size)  # batches of 7 samples, the last one short
+    assert gamma_fit_pvalue(x) == whole
 
 
 def test_pvalue_detects_a_clearly_non_gamma_sample():
