@@ -361,10 +361,27 @@ def test_slices_align_on_row_numbers():
 
     old = b"".join(row(number) for number in range(2, 801, 2))
     new = b"".join(row(number) for number in range(1, 802))
-    pairs = list(sheet_stream.aligned_slices(old, new, size=1000))
+    sheet = sheet_stream.split_sheet(b'<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main">'
+                                     b"<sheetData>" + old + b"</sheetData></worksheet>")
+    # the new rows arrive in pieces of an awkward length, as from a decompressing stream
+    pieces = [new[at: at + 777] for at in range(0, len(new), 777)]
+    pairs = list(sheet_stream.aligned_slices(sheet, iter(pieces), size=1000))
     assert len(pairs) > 5
     assert b"".join(old_piece for old_piece, _, _, _ in pairs) == old
     assert b"".join(new_piece for _, new_piece, _, _ in pairs) == new
     for old_piece, new_piece, low, high in pairs:
         rows = [int(n) for n in re.findall(rb'<row r="([0-9]+)"', new_piece)]
         assert all(low <= number and (high is None or number < high) for number in rows)
+
+
+@pytest.mark.parametrize("chunk", [1, 7, 4096])
+def test_a_written_sheet_is_read_back_in_pieces(chunk):
+    # the closing </sheetData> may be cut anywhere between two reads of the inflating stream
+    rows = b"".join(b'<row r="%d"><c r="A%d"><v>%d</v></c></row>' % (n, n, n) for n in range(1, 60))
+    head = b'<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"><sheetData>'
+    tail = b'</sheetData><pageMargins left="0.7"/></worksheet>'
+    streamed = sheet_stream.StreamedSheet(io.BytesIO(head + rows + tail), chunk=chunk)
+    assert b"".join(streamed.rows()) == rows
+    assert (streamed.head, streamed.tail) == (head, tail)
+    with pytest.raises(sheet_stream.NotStreamable, match="comments"):
+        list(sheet_stream.StreamedSheet(io.BytesIO(head + rows + b"<!-- x -->" + tail), chunk=chunk).rows())

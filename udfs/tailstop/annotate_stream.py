@@ -44,16 +44,20 @@ from .workbooks.log_layout import (
     write_decision_header,
     write_estimate_block,
 )
-from .workbooks.package import GRID_COLUMNS, inspect_package
+from .workbooks.package import GRID_COLUMNS, Limits, inspect_package
 from .workbooks.safe_io import column_from_headers, write_file_atomically
 
-__all__ = ["STREAM_FROM_BYTES", "wants_streaming", "annotate_streamed", "NotStreamable"]
+__all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable"]
 
 NotStreamable = ss.NotStreamable
 
 # A sheet part this large (about 80,000 rows of two columns) is edited as bytes:
 # openpyxl's cell model of it would take some 200 MiB and most of the run time.
 STREAM_FROM_BYTES = 8 * 2**20
+# The byte editor holds one copy of the sheet's XML and never a cell model, so it takes parts and cell
+# counts that the openpyxl path's limits refuse (a full-sheet log of six columns is some 280 MB of XML and
+# 6.3 million cells); the zip-bomb ratio and the sheet-extent checks stay as they are.
+STREAM_LIMITS = Limits(max_part_bytes=640 * 2**20, max_total_bytes=1024 * 2**20, max_cells=25_000_000)
 WIDTHS = (18, 44, 24)  # decision column, block labels, block values (as the openpyxl path sets them)
 _WORKBOOK = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet.main+xml"
 _MAIN = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
@@ -84,7 +88,7 @@ def _active_title(workbook, titles):
 def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, in_place=False, backup=True,
                       live=False) -> AnnotateResult:
     """``annotate`` without loading the book; ``NotStreamable`` when its markup needs the openpyxl path."""
-    report = inspect_package(source)
+    report = inspect_package(source, STREAM_LIMITS)
     if _WORKBOOK not in report.content_types.values():
         raise NotStreamable("not a plain .xlsx workbook (a template or a macro-enabled book)")
     with zipfile.ZipFile(source) as archive:
@@ -124,7 +128,7 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
 
     def write(handle):
         _write_package(source, handle, part, styles_part, new_styles,
-                       (head, ss.extended_rows(split.region, additions(), label_column + 1), tail))
+                       (head, ss.extended_rows(split, additions(), label_column + 1), tail))
 
     checked = {}
 
@@ -158,7 +162,7 @@ def _scan(split, package, title, column):
     shape = ss.SheetShape()
     reader = cell_check.SliceReader(package, split.root)
     number, found, headers = None, {}, {}
-    for _, piece in ss.row_slices(split.region):
+    for _, piece in split.slices():
         shape.take(piece)
         cells = reader.cells(piece)
         if number is None:
@@ -303,9 +307,10 @@ def _verify(source, path, part, styles_part, split, package, edit, dxf, added, l
     with zipfile.ZipFile(source) as original, zipfile.ZipFile(path) as written:
         copied = _check_copied_parts(source, original, written, {part, styles_part})
         _check_styles(source, original.read(styles_part), written.read(styles_part), edit, dxf)
-        new = ss.split_sheet(written.read(part))
+        with written.open(part) as stream:
+            new = ss.StreamedSheet(stream)
+            cells = _check_rows(source, split, new, package, added, log, decision_column, decisions, rule)
     _check_around_rows(source, split, new)
-    cells = _check_rows(source, split, new, package, added, log, decision_column, decisions, rule)
     return {"cells": cells, "copied": copied}
 
 
@@ -384,7 +389,7 @@ def _check_rows(source, before, after, package, added, log, decision_column, dec
     old_reader = cell_check.SliceReader(package, before.root)
     new_reader = cell_check.SliceReader(package, after.root)
     checked = 0
-    for old_piece, new_piece, low, high in ss.aligned_slices(before.region, after.region):
+    for old_piece, new_piece, low, high in ss.aligned_slices(before, after.rows()):
         old_cells = old_reader.cells(old_piece)
         checked += len(old_cells)
         expected = old_cells

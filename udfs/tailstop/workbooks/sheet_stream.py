@@ -21,8 +21,9 @@ otherwise, and the caller takes the openpyxl path): a worksheet and a style
 sheet in the default SpreadsheetML namespace, rows in increasing order, every
 row and cell with its reference, no comments or CDATA among the rows.
 
-Everything is read in slices that start at a ``<row`` element, so memory
-stays near the size of the sheet's XML, not of a cell model.
+Everything is read in slices that start at a ``<row`` element: the original
+sheet's XML is held once, the written one is checked as it inflates, so
+memory stays near the size of the sheet's XML, not of a cell model.
 """
 from __future__ import annotations
 
@@ -36,7 +37,7 @@ __all__ = [
     "NotStreamable",
     "SheetXml",
     "split_sheet",
-    "row_slices",
+    "StreamedSheet",
     "aligned_slices",
     "SheetShape",
     "StylesEdit",
@@ -79,49 +80,103 @@ class NotStreamable(Exception):
 
 @dataclass(frozen=True)
 class SheetXml:
-    """A worksheet part cut around its rows.
+    """A worksheet part cut around its rows, without copying them.
 
-    ``head + region + tail`` is the part (with ``<sheetData/>`` opened into
-    ``<sheetData></sheetData>``); ``root`` is the ``<worksheet …>`` start tag,
-    which declares the namespaces the rows may use.
+    The rows are ``xml[start:end]``; ``head + rows + tail`` is the part (with
+    ``<sheetData/>`` opened into ``<sheetData></sheetData>``). ``root`` is the
+    ``<worksheet …>`` start tag, which declares the namespaces the rows may use.
     """
 
     root: bytes
     head: bytes
-    region: bytes
+    xml: bytes
+    start: int
+    end: int
     tail: bytes
+
+    def slices(self, size: int = SLICE_BYTES):
+        """``(offset, slice)`` of the rows, each slice starting at a ``<row`` element."""
+        xml, start, end = self.xml, self.start, self.end
+        while start < end:
+            cut = xml.find(b"<row", start + size, end)
+            stop = end if cut < 0 else cut
+            yield start, xml[start:stop]
+            start = stop
 
 
 def split_sheet(xml: bytes) -> SheetXml:
-    """Cut a worksheet part into head, rows and tail; ``NotStreamable`` for markup this module does not edit."""
-    root = _ROOT.search(xml, 0, 4096)
-    namespace = _DEFAULT_NS.search(root.group(0)) if root else None
-    if namespace is None or namespace.group(1) != MAIN_NAMESPACE:
-        raise NotStreamable("the worksheet does not use the default SpreadsheetML namespace")
+    """Cut a worksheet part around its rows; ``NotStreamable`` for markup this module does not edit."""
+    root = _check_root(xml)
     found = list(_SHEET_DATA.finditer(xml))
     if len(found) != 1:
         raise NotStreamable("the worksheet has no single <sheetData> element")
     start = found[0]
     if start.group(1):
-        head, region, tail = xml[: start.start()] + b"<sheetData>", b"", b"</sheetData>" + xml[start.end():]
-    else:
-        end = xml.find(b"</sheetData>", start.end())
-        if end < 0 or xml.find(b"</sheetData>", end + 1) >= 0:
-            raise NotStreamable("the worksheet's <sheetData> element is not closed once")
-        head, region, tail = xml[: start.end()], xml[start.end(): end], xml[end:]
-    if b"<!" in region:
+        return SheetXml(root, xml[: start.start()] + b"<sheetData>", xml, start.end(), start.end(),
+                        b"</sheetData>" + xml[start.end():])
+    end = xml.find(b"</sheetData>", start.end())
+    if end < 0 or xml.find(b"</sheetData>", end + 1) >= 0:
+        raise NotStreamable("the worksheet's <sheetData> element is not closed once")
+    if xml.find(b"<!", start.end(), end) >= 0:
         raise NotStreamable("comments or CDATA among the rows")
-    return SheetXml(root.group(0), head, region, tail)
+    return SheetXml(root, xml[: start.end()], xml, start.end(), end, xml[end:])
 
 
-def row_slices(region: bytes, size: int = SLICE_BYTES):
-    """``(offset, slice)`` of the rows region, each slice starting at a ``<row`` element."""
-    start = 0
-    while start < len(region):
-        cut = region.find(b"<row", start + size)
-        end = len(region) if cut < 0 else cut
-        yield start, region[start:end]
-        start = end
+def _check_root(xml):
+    root = _ROOT.search(xml, 0, 4096)
+    namespace = _DEFAULT_NS.search(root.group(0)) if root else None
+    if namespace is None or namespace.group(1) != MAIN_NAMESPACE:
+        raise NotStreamable("the worksheet does not use the default SpreadsheetML namespace")
+    return root.group(0)
+
+
+class StreamedSheet:
+    """A worksheet part read from a decompressing stream: its head, then its rows in pieces, then its tail.
+
+    Used to check a written sheet without holding it in memory. The rows come
+    from ``rows()`` in pieces of any length; ``tail`` is set once they are done.
+    """
+
+    def __init__(self, stream, chunk: int = 2**20):
+        self.stream = stream
+        self.chunk = chunk
+        buffer = b""
+        while (found := _SHEET_DATA.search(buffer)) is None:
+            data = stream.read(chunk)
+            if not data:
+                raise NotStreamable("the written worksheet has no <sheetData> element")
+            buffer += data
+        if found.group(1):
+            raise NotStreamable("the written worksheet has an empty <sheetData/> element")
+        self.head = buffer[: found.end()]
+        self.root = _check_root(self.head)
+        self._rest = buffer[found.end():]
+        self.tail = None
+
+    def rows(self):
+        """Pieces of the rows, in order (no piece holds a comment or CDATA)."""
+        buffer, self._rest = self._rest, b""
+        keep = len(b"</sheetData>") - 1  # a closing tag may be cut between two reads
+        while True:
+            end = buffer.find(b"</sheetData>")
+            if end >= 0:
+                self.tail = buffer[end:] + self.stream.read()
+                yield _no_markup_declarations(buffer[:end])
+                return
+            if len(buffer) > keep:
+                _no_markup_declarations(buffer)  # the whole buffer: "<!" may straddle the cut
+                yield buffer[: len(buffer) - keep]
+                buffer = buffer[len(buffer) - keep:]
+            data = self.stream.read(self.chunk)
+            if not data:
+                raise NotStreamable("the written worksheet's <sheetData> element is not closed")
+            buffer += data
+
+
+def _no_markup_declarations(piece):
+    if b"<!" in piece:
+        raise NotStreamable("comments or CDATA among the written rows")
+    return piece
 
 
 def _row_number(attributes):
@@ -137,36 +192,45 @@ def first_row_of(piece: bytes):
     return None if found is None else _row_number(found.group(1))
 
 
-def aligned_slices(old_region: bytes, new_region: bytes, size: int = SLICE_BYTES):
-    """Pairs of slices of two rows regions that hold the same rows.
+def aligned_slices(old: SheetXml, new_rows, size: int = SLICE_BYTES):
+    """Pairs of slices of two sheets' rows that hold the same row numbers.
 
-    The old region is cut at ``<row`` elements every ``size`` bytes; the new
-    one is cut before the same row numbers (rows inserted in the new region
-    fall into the slice of their row range).
+    ``old`` is cut at ``<row`` elements every ``size`` bytes; ``new_rows``
+    (pieces of the other sheet's rows, of any length) is cut before the same
+    row numbers, so rows present only in the new sheet fall into the slice of
+    their row range.
 
     Yields
     ------
-    (old slice, new slice, first row, next slice's first row or None)
+    (old slice, new slice, first row (0 for the first slice), next slice's first row or None)
     """
-    cuts = [(offset, first_row_of(piece)) for offset, piece in row_slices(old_region, size)]
-    new_offsets = []
-    rows = _ROW_TAG.finditer(new_region)
-    for _, row in cuts[1:]:
-        for match in rows:
-            if _row_number(match.group(1)) >= row:
-                new_offsets.append(match.start())
-                break
-        else:
-            new_offsets.append(len(new_region))
-    old_bounds = [offset for offset, _ in cuts] + [len(old_region)]
-    new_bounds = [0] + new_offsets + [len(new_region)]
+    cuts = [(piece, first_row_of(piece)) for _, piece in old.slices(size)]
+    pieces = iter(new_rows)
     if not cuts:
-        yield b"", new_region, 0, None
+        yield b"", b"".join(pieces), 0, None
         return
-    for index, (offset, row) in enumerate(cuts):
+    buffer, scanned = b"", 0
+    for index, (piece, row) in enumerate(cuts):
+        low = 0 if index == 0 else row
         upto = cuts[index + 1][1] if index + 1 < len(cuts) else None
-        yield (old_region[offset: old_bounds[index + 1]], new_region[new_bounds[index]: new_bounds[index + 1]],
-               0 if index == 0 else row, upto)
+        if upto is None:
+            yield piece, buffer + b"".join(pieces), low, None
+            return
+        cut = None
+        while cut is None:
+            for match in _ROW_TAG.finditer(buffer, scanned):
+                if _row_number(match.group(1)) >= upto:
+                    cut = match.start()
+                    break
+                scanned = match.end()
+            if cut is None:
+                more = next(pieces, None)
+                if more is None:
+                    cut = len(buffer)
+                else:
+                    buffer += more
+        yield piece, buffer[:cut], low, upto
+        buffer, scanned = buffer[cut:], 0
 
 
 # --------------------------------------------------------------------------- the shape of the sheet
@@ -237,39 +301,42 @@ def cell_markup(coordinate: str, style: int, data_type: str, value, cached=None)
     raise ValueError(f"no markup for a {data_type!r} cell")
 
 
-def extended_rows(region: bytes, additions, last_column: int):
-    """The rows region with ``additions`` — ``(row, markup)`` in increasing row order — appended.
+def extended_rows(sheet: SheetXml, additions, last_column: int):
+    """The sheet's rows with ``additions`` — ``(row, markup)`` in increasing row order — appended.
 
     A row that exists gets the markup before its ``</row>`` (a ``spans``
     hint is widened to ``last_column``); a row that does not is inserted in
     order. Yields pieces of bytes.
     """
+    xml, limit = sheet.xml, sheet.end
     pending = next(additions, None)
-    position = 0
-    for match in _ROW_TAG.finditer(region):
+    position = sheet.start
+    for match in _ROW_TAG.finditer(xml, sheet.start, limit):
         if pending is None:
             break
         row = _row_number(match.group(1))
         while pending is not None and pending[0] < row:
-            yield region[position: match.start()]
+            yield xml[position: match.start()]
             position = match.start()
             yield b'<row r="%d">' % pending[0] + pending[1] + b"</row>"
             pending = next(additions, None)
         if pending is None or pending[0] != row:
             continue
         attributes = _widened(match.group(1), last_column)
-        yield region[position: match.start()]
+        yield xml[position: match.start()]
         if match.group(2):
             yield b"<row" + attributes + b">" + pending[1] + b"</row>"
             position = match.end()
         else:
-            end = region.find(b"</row>", match.end())
+            end = xml.find(b"</row>", match.end(), limit)
+            if end < 0:
+                raise NotStreamable(f"row {row} is not closed")
             yield b"<row" + attributes + b">"
-            yield region[match.end(): end]
+            yield xml[match.end(): end]
             yield pending[1]
             position = end
         pending = next(additions, None)
-    yield region[position:]
+    yield xml[position: limit]
     while pending is not None:
         yield b'<row r="%d">' % pending[0] + pending[1] + b"</row>"
         pending = next(additions, None)
