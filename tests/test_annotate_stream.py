@@ -385,3 +385,26 @@ def test_a_written_sheet_is_read_back_in_pieces(chunk):
     assert (streamed.head, streamed.tail) == (head, tail)
     with pytest.raises(sheet_stream.NotStreamable, match="comments"):
         list(sheet_stream.StreamedSheet(io.BytesIO(head + rows + b"<!-- x -->" + tail), chunk=chunk).rows())
+
+
+@pytest.mark.parametrize("streaming", [False, True], ids=["openpyxl", "streamed"])
+def test_a_damaged_cell_is_refused_with_a_message(tmp_path, capsys, monkeypatch, streaming):
+    # a shared-string index beyond the table: both readers fail on it; the command says so, no traceback
+    path = excel_like_book(tmp_path / "excel.xlsx", bench_lifetimes(30, seed=1))
+    with zipfile.ZipFile(path) as archive:
+        parts = {name: archive.read(name) for name in archive.namelist()}
+    sheet = parts["xl/worksheets/sheet1.xml"]
+    parts["xl/worksheets/sheet1.xml"] = sheet.replace(b'<c r="C1" t="s"><v>2</v>', b'<c r="C1" t="s"><v>99</v>')
+    damaged = tmp_path / "damaged.xlsx"
+    with zipfile.ZipFile(damaged, "w") as archive:
+        for name, data in parts.items():
+            archive.writestr(name, data)
+    monkeypatch.setattr(annotate_stream, "STREAM_FROM_BYTES", 1 if streaming else 2**40)
+    from tailstop.cli import main
+
+    code = main(["annotate", str(damaged), "--column", "B", "--threshold", "1200", "--accuracy", "1.5",
+                 "--pilot", "10"])
+    err = capsys.readouterr().err
+    assert code == 1 and "Traceback" not in err and "IndexError: list index out of range" in err
+    assert ("sheet 'Hours': cells of rows 1-" in err) == streaming
+    assert not default_output(damaged).exists()

@@ -44,7 +44,7 @@ from .workbooks.log_layout import (
     write_decision_header,
     write_estimate_block,
 )
-from .workbooks.package import GRID_COLUMNS, Limits, inspect_package
+from .workbooks.package import GRID_COLUMNS, Limits, WorkbookRefused, inspect_package
 from .workbooks.safe_io import column_from_headers, write_file_atomically
 
 __all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable"]
@@ -101,7 +101,10 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
             raise NotStreamable("the book has no style sheet")
         split = ss.split_sheet(archive.read(part))
         styles_xml = archive.read(styles_part)
-    shape, log, values, header = _scan(split, package, title, column)
+    try:
+        shape, log, values, header = _scan(split, package, title, column)
+    except cell_check.UnreadableCells as problem:
+        raise WorkbookRefused(f"{source.name}: sheet {title!r}: {problem}") from None
     check_log_column(log, header)
     analysis = analyse_log(log, values, plan)
     del values

@@ -51,6 +51,10 @@ def main(argv=None):
     except (ValueError, OSError) as problem:
         print(f"tailstop {args.command}: {problem}", file=sys.stderr)
         return 1
+    except Exception as problem:  # a bug or a file nobody foresaw: a message, not a traceback
+        print(f"tailstop {args.command}: stopped by an unexpected {type(problem).__name__}: {problem}. "
+              "Nothing was written; please report this with the file.", file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":  # pragma: no cover

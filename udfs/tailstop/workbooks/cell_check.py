@@ -76,6 +76,7 @@ __all__ = [
     "read_package",
     "package_parts",
     "SliceReader",
+    "UnreadableCells",
     "raw_value",
     "same_cells",
 ]
@@ -659,14 +660,27 @@ class SliceReader:
             try:
                 _read_chunk(piece, cells, False, self.columns, self.date_styles, self.package, self.last)
                 return cells
-            except _NotOpenpyxlMarkup:
+            except (_NotOpenpyxlMarkup, LookupError, ValueError):  # the parser below says what is wrong
                 pass
             xml = self.root + b"<sheetData>" + piece + b"</sheetData></worksheet>"
-            cells = _parsed_sheet_cells(xml, self.package)
+            try:
+                cells = _parsed_sheet_cells(xml, self.package)
+            except Exception as error:  # damaged cells, e.g. a shared-string index out of range
+                raise UnreadableCells(f"cells of rows {_row_span(piece)} cannot be read "
+                                      f"({type(error).__name__}: {error})") from None
         self.parsed_slices += 1
         if cells:
             self.last[0] = max(self.last[0], max(cells))
         return cells
+
+
+class UnreadableCells(ValueError):
+    """A slice of a sheet's rows that neither reader can read (a damaged part)."""
+
+
+def _row_span(piece):
+    rows = re.findall(rb'<row\b[^>]*?\br="([0-9]+)"', piece)
+    return f"{int(rows[0])}-{int(rows[-1])}" if rows else "(unnumbered)"
 
 
 def raw_value(entry):

@@ -101,8 +101,9 @@ def open_workbook_safely(path, *, allow_lossy=False, read_only=False, data_only=
         raise WorkbookRefused(_loss_message(Path(path), report))
     try:
         book = openpyxl.load_workbook(path, read_only=read_only, data_only=data_only)
-    except (KeyError, ValueError, TypeError, OSError) as error:
-        raise WorkbookRefused(f"{Path(path).name}: openpyxl cannot read this workbook ({error})") from None
+    except Exception as error:  # a damaged part openpyxl trips over (a shared-string index out of range, ...)
+        raise WorkbookRefused(f"{Path(path).name}: openpyxl cannot read this workbook "
+                              f"({type(error).__name__}: {error})") from None
     book.tailstop_report = report
     return book
 
