@@ -210,9 +210,20 @@ CHILD = textwrap.dedent("""
 """)
 
 
-def open_in_child(path):
+# the same, through annotate's byte editor for long logs (it inspects with larger part and cell limits)
+STREAM_CHILD = CHILD.replace(
+    "from tailstop.workbooks.safe_io import WorkbookRefused, open_workbook_safely",
+    "from tailstop.annotate import AnnotateRefused, annotate\n"
+    "from tailstop.workbooks.log_layout import RulePlan\n"
+    "from tailstop.workbooks.safe_io import WorkbookRefused").replace(
+    "open_workbook_safely(sys.argv[1])",
+    "annotate(sys.argv[1], column='A', plan=RulePlan.checked(1.0, 1.5, 0.95, 2), streaming=True)").replace(
+    "except WorkbookRefused as refusal:", "except (WorkbookRefused, AnnotateRefused) as refusal:")
+
+
+def open_in_child(path, script=CHILD):
     """Open a workbook in a fresh interpreter; returns (refusal message or None, peak RSS growth)."""
-    done = subprocess.run([sys.executable, "-c", CHILD, str(path)], capture_output=True, text=True,
+    done = subprocess.run([sys.executable, "-c", script, str(path)], capture_output=True, text=True,
                           timeout=HOSTILE_TIMEOUT, check=True)
     result = json.loads(done.stdout.strip().splitlines()[-1])
     return result["refused"], result["growth"]
@@ -227,6 +238,19 @@ def test_hostile_file_is_refused_with_bounded_memory(tmp_path, case):
     assert message is not None, f"{case} was opened"
     assert expected in message
     assert growth < MEMORY_BOUND, f"{case}: refusing took {growth / 2**20:.0f} MiB"
+
+
+@pytest.mark.parametrize("case", sorted(HOSTILE))
+def test_hostile_file_is_refused_by_the_streaming_annotate_too(tmp_path, case):
+    # common practice (OWASP XML/zip-bomb guidance), no published check value
+    build, expected = HOSTILE[case]
+    path = build(tmp_path / "hostile.xlsx")
+    assert "open_workbook_safely" not in STREAM_CHILD
+    message, growth = open_in_child(path, STREAM_CHILD)
+    assert message is not None, f"{case} was annotated"
+    assert expected in message
+    assert growth < MEMORY_BOUND, f"{case}: refusing took {growth / 2**20:.0f} MiB"
+    assert not list(tmp_path.glob("*-tailstop.xlsx"))
 
 
 def test_ordinary_book_opens_in_child_with_the_same_bound(tmp_path):

@@ -57,7 +57,7 @@ STREAM_FROM_BYTES = 8 * 2**20
 # The byte editor holds one copy of the sheet's XML and never a cell model, so it takes parts and cell
 # counts that the openpyxl path's limits refuse (a full-sheet log of six columns is some 280 MB of XML and
 # 6.3 million cells); the zip-bomb ratio and the sheet-extent checks stay as they are.
-STREAM_LIMITS = Limits(max_part_bytes=640 * 2**20, max_total_bytes=1024 * 2**20, max_cells=25_000_000)
+STREAM_LIMITS = Limits(max_part_bytes=384 * 2**20, max_total_bytes=768 * 2**20, max_cells=25_000_000)
 WIDTHS = (18, 44, 24)  # decision column, block labels, block values (as the openpyxl path sets them)
 _WORKBOOK = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet.main+xml"
 _MAIN = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
