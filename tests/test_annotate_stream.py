@@ -408,3 +408,43 @@ def test_a_damaged_cell_is_refused_with_a_message(tmp_path, capsys, monkeypatch,
     assert code == 1 and "Traceback" not in err and "IndexError: list index out of range" in err
     assert ("sheet 'Hours': cells of rows 1-" in err) == streaming
     assert not default_output(damaged).exists()
+
+
+def test_existing_formats_validations_links_and_widths_stay_in_their_place(tmp_path):
+    from openpyxl.formatting.rule import CellIsRule
+    from openpyxl.styles import PatternFill
+    from openpyxl.worksheet.datavalidation import DataValidation
+
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Log"
+    sheet.append(["Unit", "Hours"])
+    for unit, value in enumerate(bench_lifetimes(80, seed=6), start=1):
+        sheet.append([unit, value])
+    sheet.conditional_formatting.add("B2:B81", CellIsRule(operator="lessThan", formula=["100"],
+                                                          fill=PatternFill("solid", fgColor="FFC7CE")))
+    check = DataValidation(type="decimal", operator="greaterThan", formula1="0")
+    sheet.add_data_validation(check)
+    check.add("B2:B81")
+    sheet["A1"].hyperlink = "https://example.org/bench-procedure"
+    sheet.column_dimensions.group("E", "Z", hidden=False)  # a <col> entry spanning the block's columns
+    sheet.column_dimensions["E"].width = 11
+    book.save(tmp_path / "formatted.xlsx")
+    full = annotate(tmp_path / "formatted.xlsx", column="B", plan=plan(threshold=1200), out=tmp_path / "full.xlsx",
+                    streaming=False)
+    streamed = annotate(tmp_path / "formatted.xlsx", column="B", plan=plan(threshold=1200),
+                        out=tmp_path / "streamed.xlsx", streaming=True)
+    assert all_cells(streamed.path) == all_cells(full.path)
+    assert styles_of(streamed.path, "Log") == styles_of(full.path, "Log")
+    widths, formats = looks_of(streamed.path, "Log")
+    assert (widths, sorted(formats)) == (looks_of(full.path, "Log")[0], sorted(looks_of(full.path, "Log")[1]))
+    assert len(formats) == 2
+    xml = sheet_part(streamed.path, "Log")
+    assert_schema_order(xml, WORKSHEET_ORDER)
+    loaded = openpyxl.load_workbook(streamed.path)["Log"]
+    assert loaded["A1"].hyperlink.target == "https://example.org/bench-procedure"
+    assert [str(v.sqref) for v in loaded.data_validations.dataValidation] == ["B2:B81"]
+    # the user's format keeps its highlight; ours points at the differential format appended after it
+    priorities = [int(p) for p in re.findall(rb'priority="([0-9]+)"', xml)]
+    dxf_ids = [int(p) for p in re.findall(rb'dxfId="([0-9]+)"', xml)]
+    assert len(set(priorities)) == 2 and dxf_ids == [0, 1]
