@@ -533,6 +533,27 @@ def test_usage_errors_and_missing_files_exit_with_1(tmp_path, capsys):
     assert code == 1 and "log.xlsx" in err and "Traceback" not in err
 
 
+def unit_hours_book(units, seed):
+    """A workbook whose sheet 'Log' holds unit numbers and seeded bench lifetimes: (book, sheet)."""
+    book = openpyxl.Workbook()
+    log = book.active
+    log.title = "Log"
+    log.append(["Unit", "Hours"])
+    for unit, value in enumerate(bench_lifetimes(units, seed=seed), start=1):
+        log.append([unit, value])
+    return book, log
+
+
+def mixed_log(path, placed):
+    """A 60-unit log on sheet 'Log' with ``placed`` (row, column, value, on the other sheet?) cells around it."""
+    book, log = unit_hours_book(60, 3)
+    other = book.create_sheet("Other")
+    for row, column, value, elsewhere in placed:
+        (other if elsewhere else log).cell(row + 1, column, value)
+    book.save(path)
+    return path
+
+
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), CELL_VALUES, st.booleans()), max_size=25))
 def test_annotate_keeps_whatever_else_the_book_holds(placed):
@@ -540,17 +561,8 @@ def test_annotate_keeps_whatever_else_the_book_holds(placed):
     import tempfile
 
     with tempfile.TemporaryDirectory() as folder:
-        path = Path(folder) / "mixed.xlsx"
-        book = openpyxl.Workbook()
-        log = book.active
-        log.title = "Log"
-        log.append(["Unit", "Hours"])
-        for unit, value in enumerate(bench_lifetimes(60, seed=3), start=1):
-            log.append([unit, value])
-        other = book.create_sheet("Other")
-        for row, column, value, elsewhere in placed:
-            (other if elsewhere else log).cell(row + 1, column, value)
-        book.save(path)
+        path = mixed_log(Path(folder) / "mixed.xlsx", placed)
+        log = openpyxl.load_workbook(path)["Log"]
         before = all_cells(path)
         result = annotate(path, column="Hours", plan=plan(threshold=1200))
         after = all_cells(result.path)

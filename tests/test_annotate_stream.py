@@ -22,7 +22,8 @@ from openpyxl.xml.functions import tostring
 import tailstop.annotate_stream as annotate_stream
 from tailstop.annotate import AnnotateRefused, annotate, default_output, summary
 from tailstop.workbooks import sheet_stream
-from test_annotate import CELL_VALUES, LOG_SHEET, all_cells, bench_lifetimes, plan, rich_log, rule_stop
+from test_annotate import (CELL_VALUES, LOG_SHEET, all_cells, bench_lifetimes, mixed_log, plan, rich_log, rule_stop,
+                           unit_hours_book)
 
 MAIN = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
 # ECMA-376 Part 1, 18.3.1.99 CT_Worksheet: the order of a worksheet's child elements
@@ -67,6 +68,15 @@ def assert_schema_order(xml, order):
     assert positions == sorted(positions), tags
 
 
+def both_paths(path, folder, column, rule, *, live=False, tag=""):
+    """Annotate one log through openpyxl and through the byte editor: (full result, streamed result)."""
+    full = annotate(path, column=column, plan=rule, live=live, out=Path(folder) / f"full{tag}.xlsx",
+                    streaming=False)
+    streamed = annotate(path, column=column, plan=rule, live=live, out=Path(folder) / f"streamed{tag}.xlsx",
+                        streaming=True)
+    return full, streamed
+
+
 @pytest.fixture
 def log_path(tmp_path):
     return rich_log(tmp_path / "bench.xlsx")
@@ -74,10 +84,7 @@ def log_path(tmp_path):
 
 @pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
 def test_the_streamed_book_holds_what_the_openpyxl_path_writes(log_path, live):
-    full = annotate(log_path, column="D", plan=plan(), live=live, out=log_path.with_name("full.xlsx"),
-                    streaming=False)
-    streamed = annotate(log_path, column="D", plan=plan(), live=live, out=log_path.with_name("streamed.xlsx"),
-                        streaming=True)
+    full, streamed = both_paths(log_path, log_path.parent, "D", plan(), live=live)
     assert streamed.copied_parts is not None and full.copied_parts is None
     assert all_cells(streamed.path) == all_cells(full.path)
     assert all_cells(streamed.path, data_only=True) == all_cells(full.path, data_only=True)
@@ -245,10 +252,7 @@ def excel_like_book(path, lifetimes, *, prefixed=False):
 def test_markup_as_excel_writes_it(tmp_path, live):
     lifetimes = bench_lifetimes(60, seed=7)
     path = excel_like_book(tmp_path / "excel.xlsx", lifetimes)
-    full = annotate(path, column="Hours to failure", plan=plan(threshold=1200), live=live,
-                    out=tmp_path / "full.xlsx", streaming=False)
-    streamed = annotate(path, column="Hours to failure", plan=plan(threshold=1200), live=live,
-                        out=tmp_path / "streamed.xlsx", streaming=True)
+    full, streamed = both_paths(path, tmp_path, "Hours to failure", plan(threshold=1200), live=live)
     assert all_cells(streamed.path) == all_cells(full.path)
     # stored values: tailstop's cells agree; the user's formulas keep the values Excel stored, which the
     # openpyxl path cannot keep (openpyxl writes formulas without their values)
@@ -294,36 +298,22 @@ def test_rows_the_log_lacks_are_inserted_in_order(tmp_path):
             sheet.cell(index + 2, 1, value)
     book.save(tmp_path / "gaps.xlsx")
     for live in (False, True):
-        full = annotate(tmp_path / "gaps.xlsx", column="A", plan=plan(threshold=1200, pilot=5), live=live,
-                        out=tmp_path / f"full-{live}.xlsx", streaming=False)
-        streamed = annotate(tmp_path / "gaps.xlsx", column="A", plan=plan(threshold=1200, pilot=5), live=live,
-                            out=tmp_path / f"streamed-{live}.xlsx", streaming=True)
+        full, streamed = both_paths(tmp_path / "gaps.xlsx", tmp_path, "A", plan(threshold=1200, pilot=5), live=live,
+                                    tag=f"-{live}")
         assert all_cells(streamed.path) == all_cells(full.path)
         rows = [int(number) for number in re.findall(rb'<row r="([0-9]+)"', sheet_part(streamed.path, "Log"))]
         assert rows == list(range(1, max(rows) + 1))
 
 
 @settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), CELL_VALUES), max_size=25))
-def test_streaming_keeps_whatever_else_the_sheet_holds(placed):
+@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), CELL_VALUES, st.booleans()), max_size=25))
+def test_streaming_keeps_whatever_else_the_book_holds(placed):
     # property: any mix of values and formulas beside the log comes through the byte editor as through openpyxl
     import tempfile
 
     with tempfile.TemporaryDirectory() as folder:
-        path = Path(folder) / "mixed.xlsx"
-        book = openpyxl.Workbook()
-        log = book.active
-        log.title = "Log"
-        log.append(["Unit", "Hours"])
-        for unit, value in enumerate(bench_lifetimes(60, seed=3), start=1):
-            log.append([unit, value])
-        for row, column, value in placed:
-            log.cell(row + 1, column, value)
-        book.save(path)
-        full = annotate(path, column="Hours", plan=plan(threshold=1200), out=Path(folder) / "full.xlsx",
-                        streaming=False)
-        streamed = annotate(path, column="Hours", plan=plan(threshold=1200), out=Path(folder) / "streamed.xlsx",
-                            streaming=True)
+        path = mixed_log(Path(folder) / "mixed.xlsx", placed)
+        full, streamed = both_paths(path, folder, "Hours", plan(threshold=1200))
         assert all_cells(streamed.path) == all_cells(full.path)
         assert streamed.decision_column == full.decision_column
 
@@ -415,12 +405,7 @@ def test_existing_formats_validations_links_and_widths_stay_in_their_place(tmp_p
     from openpyxl.styles import PatternFill
     from openpyxl.worksheet.datavalidation import DataValidation
 
-    book = openpyxl.Workbook()
-    sheet = book.active
-    sheet.title = "Log"
-    sheet.append(["Unit", "Hours"])
-    for unit, value in enumerate(bench_lifetimes(80, seed=6), start=1):
-        sheet.append([unit, value])
+    book, sheet = unit_hours_book(80, 6)
     sheet.conditional_formatting.add("B2:B81", CellIsRule(operator="lessThan", formula=["100"],
                                                           fill=PatternFill("solid", fgColor="FFC7CE")))
     check = DataValidation(type="decimal", operator="greaterThan", formula1="0")
@@ -430,10 +415,7 @@ def test_existing_formats_validations_links_and_widths_stay_in_their_place(tmp_p
     sheet.column_dimensions.group("E", "Z", hidden=False)  # a <col> entry spanning the block's columns
     sheet.column_dimensions["E"].width = 11
     book.save(tmp_path / "formatted.xlsx")
-    full = annotate(tmp_path / "formatted.xlsx", column="B", plan=plan(threshold=1200), out=tmp_path / "full.xlsx",
-                    streaming=False)
-    streamed = annotate(tmp_path / "formatted.xlsx", column="B", plan=plan(threshold=1200),
-                        out=tmp_path / "streamed.xlsx", streaming=True)
+    full, streamed = both_paths(tmp_path / "formatted.xlsx", tmp_path, "B", plan(threshold=1200))
     assert all_cells(streamed.path) == all_cells(full.path)
     assert styles_of(streamed.path, "Log") == styles_of(full.path, "Log")
     widths, formats = looks_of(streamed.path, "Log")

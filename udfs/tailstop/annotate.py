@@ -66,7 +66,7 @@ from .workbooks.row_cells import append_to_sheet
 from .workbooks.safe_io import open_workbook_safely, resolve_column, write_file_atomically
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "summary", "add_arguments", "run",
-           "check_log_column"]
+           "check_log_column", "place_columns"]
 
 OUTPUT_SUFFIX = "-tailstop"
 BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
@@ -193,12 +193,7 @@ def _add(worksheet, log, values, analysis, live, cached):
     -------
     (decision column, BlockLayout, {row: markup to append}, {cell key: canonical content of every added cell})
     """
-    decision_column = worksheet.max_column + 1
-    label_column = decision_column + 1 + BLOCK_GAP
-    if label_column + 1 > GRID_COLUMNS:
-        raise AnnotateRefused(f"sheet {worksheet.title!r} has no free columns on the right for the decision "
-                              "column and the estimate block")
-    layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
+    decision_column, label_column, layout = place_columns(worksheet.title, worksheet.max_column, analysis, live)
     write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
                          source="values computed by tailstop annotate")
     markup = write_decision_column(worksheet, log, decision_column, analysis, live=live, cached=cached,
@@ -209,6 +204,17 @@ def _add(worksheet, log, values, analysis, live, cached):
     added = _added_cells(worksheet, log, decision_column, layout, cached)
     added.update({cell_check.cell_key(row, decision_column): content for row, (_, content) in markup.items()})
     return decision_column, layout, {row: cell for row, (cell, _) in markup.items()}, added
+
+
+def place_columns(title, max_column, analysis, live):
+    """The decision column right of everything on the sheet, then the estimate block's label column and layout."""
+    decision_column = max_column + 1
+    label_column = decision_column + 1 + BLOCK_GAP
+    if label_column + 1 > GRID_COLUMNS:
+        raise AnnotateRefused(f"sheet {title!r} has no free columns on the right for the decision column and "
+                              "the estimate block")
+    layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
+    return decision_column, label_column, layout
 
 
 def _target(source, out, in_place):

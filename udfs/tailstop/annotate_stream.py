@@ -27,24 +27,21 @@ from openpyxl.styles import Font, PatternFill
 from openpyxl.styles.fills import Fill
 from openpyxl.styles.numbers import BUILTIN_FORMATS, BUILTIN_FORMATS_MAX_SIZE, BUILTIN_FORMATS_REVERSE
 from openpyxl.styles.stylesheet import Stylesheet
-from openpyxl.utils.cell import get_column_letter
 from openpyxl.xml.functions import tostring
 
-from .annotate import BLOCK_GAP, AnnotateRefused, AnnotateResult, check_log_column
+from .annotate import AnnotateRefused, AnnotateResult, check_log_column, place_columns
 from .workbooks import cell_check
 from .workbooks import sheet_stream as ss
 from .workbooks.log_layout import (
-    LIVE_NOTE_LINES,
     LogRange,
     analyse_log,
-    block_layout,
     decision_cell,
     decision_rule,
     highlight_stop,
     write_decision_header,
     write_estimate_block,
 )
-from .workbooks.package import GRID_COLUMNS, Limits, WorkbookRefused, inspect_package
+from .workbooks.package import Limits, WorkbookRefused, inspect_package
 from .workbooks.safe_io import column_from_headers, write_file_atomically
 
 __all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable"]
@@ -108,12 +105,7 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     check_log_column(log, header)
     analysis = analyse_log(log, values, plan)
     del values
-    decision_column = shape.max_column + 1
-    label_column = decision_column + 1 + BLOCK_GAP
-    if label_column + 1 > GRID_COLUMNS:
-        raise AnnotateRefused(f"sheet {title!r} has no free columns on the right for the decision column and the "
-                              "estimate block")
-    layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
+    decision_column, label_column, layout = place_columns(title, shape.max_column, analysis, live)
     edit = ss.StylesEdit(styles_xml, BUILTIN_FORMATS_REVERSE)
     block, added, cf = _block_markup(title, log, decision_column, layout, analysis, live, edit)
     last_row = max(shape.max_row, log.last_row, layout.last_row)
