@@ -346,7 +346,8 @@ def add_arguments(parser):
     parser.add_argument("--live", action="store_true",
                         help="write tailstop formulas (with their values stored) instead of values")
     parser.add_argument("--allow-lossy", action="store_true",
-                        help="go on although openpyxl would drop some content of the book (listed)")
+                        help="go on although openpyxl would drop some content of the book (listed); long "
+                             "logs are edited as a stream, lose nothing and never need this")
     parser.error = functools.partial(_usage_error, parser)
     return run
 
