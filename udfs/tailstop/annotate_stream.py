@@ -89,8 +89,11 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     if _WORKBOOK not in report.content_types.values():
         raise NotStreamable("not a plain .xlsx workbook (a template or a macro-enabled book)")
     with zipfile.ZipFile(source) as archive:
-        package = cell_check.read_package(archive)
-        workbook, titles, worksheets, targets = cell_check.package_parts(archive)
+        try:
+            package = cell_check.read_package(archive)
+            workbook, titles, worksheets, targets = cell_check.package_parts(archive)
+        except (KeyError, ValueError, IndexError) as problem:  # parts where this path does not look for them
+            raise NotStreamable(f"the workbook's parts are not where this path reads them ({problem})") from None
         title = _sheet_title(workbook, titles, worksheets, sheet, source)
         part = worksheets[title]
         styles_part = next((name for kind, name in targets if kind.endswith("/styles")), None)
@@ -275,7 +278,7 @@ def _write_package(source, handle, part, styles_part, styles_xml, sheet_pieces):
             if info.filename == part:
                 entry = _copy_info(info)
                 entry.compress_type = zipfile.ZIP_DEFLATED
-                with output.open(entry, "w", force_zip64=True) as stream:
+                with output.open(entry, "w") as stream:  # parts stay far below 2 GiB: no ZIP64 records
                     stream.write(head)
                     batch, size = [], 0
                     for piece in rows:
@@ -289,7 +292,7 @@ def _write_package(source, handle, part, styles_part, styles_xml, sheet_pieces):
             elif info.filename == styles_part:
                 output.writestr(_copy_info(info), styles_xml)
             else:
-                with original.open(info) as data, output.open(_copy_info(info), "w", force_zip64=True) as stream:
+                with original.open(info) as data, output.open(_copy_info(info), "w") as stream:
                     while chunk := data.read(_WRITE_BYTES):
                         stream.write(chunk)
 
