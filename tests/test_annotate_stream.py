@@ -430,3 +430,17 @@ def test_existing_formats_validations_links_and_widths_stay_in_their_place(tmp_p
     priorities = [int(p) for p in re.findall(rb'priority="([0-9]+)"', xml)]
     dxf_ids = [int(p) for p in re.findall(rb'dxfId="([0-9]+)"', xml)]
     assert len(set(priorities)) == 2 and dxf_ids == [0, 1]
+
+
+@pytest.mark.parametrize("after", [
+    b'<pageMargins left="0.7"/>',
+    b'<tableParts count="1"><tablePart r:id="rId2"/></tableParts>',
+    # form controls as Excel wraps them in a markup-compatibility block (from memory)
+    b'<mc:AlternateContent xmlns:mc="http://schemas.openxmlformats.org/markup-compatibility/2006"><mc:Choice '
+    b'Requires="x14"><controls><control shapeId="1025" r:id="rId3"/></controls></mc:Choice></mc:AlternateContent>',
+])
+def test_the_new_conditional_format_goes_before_what_follows_formats(after):
+    # ECMA-376 Part 1, CT_Worksheet: conditionalFormatting after mergeCells, before dataValidations and the rest
+    tail = b'</sheetData><mergeCells count="1"><mergeCell ref="A1:B1"/></mergeCells>' + after + b"</worksheet>"
+    edited = sheet_stream.edit_tail(tail, b"<conditionalFormatting/>")
+    assert edited == tail.replace(after, b"<conditionalFormatting/>" + after)

@@ -71,7 +71,9 @@ _AFTER_CONDITIONAL_FORMATS = (b"dataValidations", b"hyperlinks", b"printOptions"
                               b"headerFooter", b"rowBreaks", b"colBreaks", b"customProperties", b"cellWatches",
                               b"ignoredErrors", b"smartTags", b"drawing", b"legacyDrawing", b"legacyDrawingHF",
                               b"picture", b"oleObjects", b"controls", b"webPublishItems", b"tableParts", b"extLst")
-_LATER_TAIL = re.compile(rb"<(?:" + b"|".join(_AFTER_CONDITIONAL_FORMATS) + rb")[\s/>]|</worksheet>")
+# controls and embedded objects come wrapped in markup-compatibility blocks, also after the formats
+_LATER_TAIL = re.compile(rb"<(?:" + b"|".join(_AFTER_CONDITIONAL_FORMATS) + rb")[\s/>]|<[A-Za-z0-9_]+:AlternateContent[\s>]"
+                         rb"|</worksheet>")
 
 
 class NotStreamable(Exception):
