@@ -36,6 +36,7 @@ from .workbooks.log_layout import (
     LogRange,
     analyse_log,
     decision_cell,
+    decision_content,
     decision_rule,
     highlight_stop,
     write_decision_header,
@@ -254,7 +255,7 @@ def _decision_contents(log, decision_column, decisions, rule, low, high):
     last = log.first_row + len(decisions) if high is None else min(high, log.first_row + len(decisions))
     contents = {}
     for row in range(first, last):
-        _, content = decision_cell(log, decision_column, row, decisions[row - log.first_row], rule)
+        content = decision_content(log, row, decisions[row - log.first_row], rule)
         if content is not None:
             contents[cell_check.cell_key(row, decision_column)] = content
     return contents

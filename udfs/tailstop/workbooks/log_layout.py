@@ -55,6 +55,7 @@ __all__ = [
     "decision_rule",
     "decision_formula",
     "decision_cell",
+    "decision_content",
     "write_estimate_block",
     "set_width",
     "HEADER_FONT",
@@ -610,13 +611,20 @@ def decision_cell(log: LogRange, column: int, row: int, decision: str, rule: str
 
     Returns ``(None, None)`` for a values-mode row without a decision (no cell).
     """
+    content = decision_content(log, row, decision, rule)
+    if content is None:
+        return None, None
     coordinate = f"{get_column_letter(column)}{row}"
     if rule is not None:
-        formula = decision_formula(log, row, rule)
-        return row_cells.formula_cell(coordinate, formula, decision), ("f", formula)
-    if decision:
-        return row_cells.text_cell(coordinate, decision), decision
-    return None, None
+        return row_cells.formula_cell(coordinate, content[1], decision), content
+    return row_cells.text_cell(coordinate, decision), content
+
+
+def decision_content(log: LogRange, row: int, decision: str, rule: str | None = None):
+    """What a decision cell holds as ``cell_check.canonical`` reads it: the text, ('f', formula), or None."""
+    if rule is not None:
+        return ("f", decision_formula(log, row, rule))
+    return decision or None
 
 
 def _write_texts(sheet, column, first_row, texts):
