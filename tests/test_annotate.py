@@ -23,6 +23,7 @@ from tailstop.workbooks import cell_check
 from tailstop.workbooks.cached_values import save_with_cached_values
 from tailstop.workbooks.log_layout import DECISION_HEADER, RulePlan
 from tailstop.workbooks.recalc import evaluate_workbook
+from test_safe_io import read_parts, write_parts
 
 THRESHOLD, ACCURACY, CONFIDENCE, PILOT = 1500.0, 1.5, 0.95, 10
 LOG_SHEET = "Bench log"
@@ -363,17 +364,13 @@ def test_in_place_without_backup(log_path, capsys):
 
 def with_macros(path):
     """The book with a VBA project part added, which openpyxl would drop on save."""
-    source = zipfile.ZipFile(path).infolist()
-    data = {info.filename: zipfile.ZipFile(path).read(info) for info in source}
+    data = read_parts(path)
     types = data["[Content_Types].xml"].decode()
     data["[Content_Types].xml"] = types.replace(
         "</Types>", '<Override PartName="/xl/vbaProject.bin" ContentType="application/vnd.ms-office.vbaProject"/>'
         "</Types>").encode()
     data["xl/vbaProject.bin"] = b"\xd0\xcf\x11\xe0not really a macro project"
-    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
-        for name, content in data.items():
-            archive.writestr(name, content)
-    return path
+    return write_parts(path, data)
 
 
 def test_content_openpyxl_would_drop_is_refused_unless_allowed(log_path, capsys):
@@ -389,18 +386,14 @@ def test_content_openpyxl_would_drop_is_refused_unless_allowed(log_path, capsys)
 
 def hide_value_under_merge(path):
     """Put a value into a cell covered by a merged range, as LibreOffice can keep one."""
-    with zipfile.ZipFile(path) as archive:
-        data = {info.filename: archive.read(info) for info in archive.infolist()}
+    data = read_parts(path)
     part = "xl/worksheets/sheet1.xml"  # the Notes sheet, merged D1:E3
     xml = data[part].decode()
     assert '<c r="D1"' in xml
     xml = xml.replace("</row>", '<c r="E2" t="inlineStr"><is><t>hidden note</t></is></c></row>', 2)
     xml = xml.replace('<c r="E2" t="inlineStr"><is><t>hidden note</t></is></c></row>', "</row>", 1)
     data[part] = xml.encode()
-    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
-        for name, content in data.items():
-            archive.writestr(name, content)
-    return path
+    return write_parts(path, data)
 
 
 def test_a_value_hidden_under_a_merged_range_is_not_dropped_silently(log_path, capsys):

@@ -22,6 +22,7 @@ from openpyxl.xml.functions import tostring
 import tailstop.annotate_stream as annotate_stream
 from tailstop.annotate import AnnotateRefused, annotate, default_output, summary
 from tailstop.workbooks import sheet_stream
+from test_safe_io import read_parts, write_parts
 from test_annotate import (CELL_VALUES, LOG_SHEET, all_cells, bench_lifetimes, mixed_log, plan, rich_log, rule_stop,
                            unit_hours_book)
 
@@ -114,13 +115,9 @@ def test_every_other_part_is_copied_byte_for_byte(log_path):
 
 def test_content_openpyxl_would_drop_is_kept(log_path):
     # a custom XML part: the openpyxl path refuses (it would drop it); the byte editor keeps it
-    with zipfile.ZipFile(log_path) as source:
-        parts = {name: source.read(name) for name in source.namelist()}
+    parts = read_parts(log_path)
     parts["customXml/item1.xml"] = b'<?xml version="1.0"?><bench xmlns="urn:example:bench">rig 3</bench>'
-    path = log_path.with_name("custom.xlsx")
-    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as target:
-        for name, data in parts.items():
-            target.writestr(name, data)
+    path = write_parts(log_path.with_name("custom.xlsx"), parts)
     with pytest.raises(Exception, match="custom XML data"):
         annotate(path, column="D", plan=plan(), streaming=False)
     streamed = annotate(path, column="D", plan=plan(), streaming=True)
@@ -240,12 +237,9 @@ def excel_like_book(path, lifetimes, *, prefixed=False):
                'openxmlformats.org/package/2006/relationships"><Relationship Id="rId1" Type="http://schemas.'
                'openxmlformats.org/officeDocument/2006/relationships/officeDocument" Target="xl/workbook.xml"/>'
                '</Relationships>')
-    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as archive:
-        for name, text in (("[Content_Types].xml", types), ("_rels/.rels", package), ("xl/workbook.xml", workbook),
-                           ("xl/_rels/workbook.xml.rels", rels), ("xl/styles.xml", styles),
-                           ("xl/sharedStrings.xml", strings), ("xl/worksheets/sheet1.xml", sheet)):
-            archive.writestr(name, text)
-    return path
+    return write_parts(path, {"[Content_Types].xml": types, "_rels/.rels": package, "xl/workbook.xml": workbook,
+                              "xl/_rels/workbook.xml.rels": rels, "xl/styles.xml": styles,
+                              "xl/sharedStrings.xml": strings, "xl/worksheets/sheet1.xml": sheet})
 
 
 @pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
@@ -381,14 +375,10 @@ def test_a_written_sheet_is_read_back_in_pieces(chunk):
 def test_a_damaged_cell_is_refused_with_a_message(tmp_path, capsys, monkeypatch, streaming):
     # a shared-string index beyond the table: both readers fail on it; the command says so, no traceback
     path = excel_like_book(tmp_path / "excel.xlsx", bench_lifetimes(30, seed=1))
-    with zipfile.ZipFile(path) as archive:
-        parts = {name: archive.read(name) for name in archive.namelist()}
+    parts = read_parts(path)
     sheet = parts["xl/worksheets/sheet1.xml"]
     parts["xl/worksheets/sheet1.xml"] = sheet.replace(b'<c r="C1" t="s"><v>2</v>', b'<c r="C1" t="s"><v>99</v>')
-    damaged = tmp_path / "damaged.xlsx"
-    with zipfile.ZipFile(damaged, "w") as archive:
-        for name, data in parts.items():
-            archive.writestr(name, data)
+    damaged = write_parts(tmp_path / "damaged.xlsx", parts)
     monkeypatch.setattr(annotate_stream, "STREAM_FROM_BYTES", 1 if streaming else 2**40)
     from tailstop.cli import main
 
