@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 import openpyxl
 
-from tailstop.annotate import annotate
+from tailstop.workbooks.annotate import annotate
 from tailstop.workbooks.log_layout import RulePlan
 
 TARGET = 1.5

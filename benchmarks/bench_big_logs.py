@@ -56,7 +56,7 @@ CHILD = textwrap.dedent("""
 
 ANNOTATE_CHILD = textwrap.dedent("""
     import json, sys, time
-    from tailstop.cli import main
+    from tailstop.commands import main
     path, out, extra = sys.argv[1], sys.argv[2], sys.argv[3:]
     start = time.perf_counter()
     code = main(["annotate", path, "--column", "B", "--threshold", "2000", "--accuracy", "1.01",
@@ -133,7 +133,7 @@ def main():
     for formula, method in cases:
         ok &= report(f"{formula} ({method})", run_child(CHILD, args.rows, formula, method))
     # the fit check's dearest sizes: the most units with all 999 samples, and the most units it takes at all
-    from tailstop.fit import GOF_MIN_SAMPLES, GOF_VALUE_BUDGET
+    from tailstop.core.models.gamma.fit import GOF_MIN_SAMPLES, GOF_VALUE_BUDGET
 
     for units in (GOF_VALUE_BUDGET // 999, GOF_VALUE_BUDGET // GOF_MIN_SAMPLES):
         ok &= report(f"GAMMA_FIT_PVALUE ({units:,} units)", run_child(CHILD, units, "GAMMA_FIT_PVALUE", "-"))

@@ -27,11 +27,11 @@ import time
 import numpy as np
 from scipy import stats
 
-from tailstop.methods import model_sigma2
-from tailstop.rule import boundary_factor
-from tailstop.sequential import decision_column
-from tailstop.sheet_decisions import STOP_DECISION_COLUMN
-from tailstop.variance import sigma2_fitted_shape
+from tailstop.core.methods import model_sigma2
+from tailstop.core.rule import boundary_factor
+from tailstop.core.sequential import decision_column
+from tailstop.sheet.decisions import STOP_DECISION_COLUMN
+from tailstop.core.models.gamma.variance import sigma2_fitted_shape
 
 ROWS = 1_048_576
 SHAPE, SCALE, THRESHOLD, CONFIDENCE, PILOT = 2.4, 520.0, 1500.0, 0.95, 10

@@ -17,8 +17,8 @@ import time
 import numpy as np
 from scipy import stats
 
-from tailstop import operating, rule
-from tailstop.methods import SufficientStatistics, model_sigma2
+from tailstop.core import operating, rule
+from tailstop.core.methods import SufficientStatistics, model_sigma2
 
 
 def best_of(repeats, function):

@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from tailstop.accuracy import accuracy_for_units, critical_value, odds_interval, probability_interval, units_for_accuracy, whole_units
+from tailstop.core.accuracy import accuracy_for_units, critical_value, odds_interval, probability_interval, units_for_accuracy, whole_units
 
 
 def test_critical_value():

@@ -16,9 +16,9 @@ from openpyxl.comments import Comment
 from openpyxl.worksheet.formula import ArrayFormula
 from scipy import stats
 
-import tailstop.annotate as annotate_module
-from tailstop.annotate import AnnotateRefused, annotate, default_output
-from tailstop.cli import main
+import tailstop.workbooks.annotate as annotate_module
+from tailstop.workbooks.annotate import AnnotateRefused, annotate, default_output
+from tailstop.commands import main
 from tailstop.workbooks import cell_check
 from tailstop.workbooks.cached_values import save_with_cached_values
 from tailstop.workbooks.log_layout import DECISION_HEADER, RulePlan

@@ -19,8 +19,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from openpyxl.xml.functions import tostring
 
-import tailstop.annotate_stream as annotate_stream
-from tailstop.annotate import AnnotateRefused, annotate, default_output, summary
+import tailstop.workbooks.annotate_stream as annotate_stream
+from tailstop.commands.annotate import summary
+from tailstop.workbooks.annotate import AnnotateRefused, annotate, default_output
 from tailstop.workbooks import sheet_stream
 from test_safe_io import read_parts, write_parts
 from test_annotate import (CELL_VALUES, LOG_SHEET, all_cells, bench_lifetimes, mixed_log, plan, rich_log, rule_stop,
@@ -380,7 +381,7 @@ def test_a_damaged_cell_is_refused_with_a_message(tmp_path, capsys, monkeypatch,
     parts["xl/worksheets/sheet1.xml"] = sheet.replace(b'<c r="C1" t="s"><v>2</v>', b'<c r="C1" t="s"><v>99</v>')
     damaged = write_parts(tmp_path / "damaged.xlsx", parts)
     monkeypatch.setattr(annotate_stream, "STREAM_FROM_BYTES", 1 if streaming else 2**40)
-    from tailstop.cli import main
+    from tailstop.commands import main
 
     code = main(["annotate", str(damaged), "--column", "B", "--threshold", "1200", "--accuracy", "1.5",
                  "--pilot", "10"])

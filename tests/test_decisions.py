@@ -8,12 +8,12 @@ import pytest
 from scipy import stats
 
 from conftest import range_values, write_log
-from tailstop import sequential
-from tailstop.fit import shape_from_log_ratio
-from tailstop.methods import SufficientStatistics
-from tailstop.rule import stops
-from tailstop.sheet_decisions import STOP_DECISION, STOP_DECISION_COLUMN, TWO_STAGE_UNITS, UNITS_NEEDED_NOW
-from tailstop.variance import sigma2_fitted_shape, sigma2_known_shape
+from tailstop.core import sequential
+from tailstop.core.models.gamma.fit import shape_from_log_ratio
+from tailstop.core.methods import SufficientStatistics
+from tailstop.core.rule import stops
+from tailstop.sheet.decisions import STOP_DECISION, STOP_DECISION_COLUMN, TWO_STAGE_UNITS, UNITS_NEEDED_NOW
+from tailstop.core.models.gamma.variance import sigma2_fitted_shape, sigma2_known_shape
 
 # check value: NIST/SEMATECH e-Handbook §1.3.6.7.1, z for 95 % two-sided
 Z95 = 1.959964
@@ -445,7 +445,7 @@ def _read_cell_by_cell(column):
 
 
 def test_read_log_cells_matches_a_cell_by_cell_reading():
-    from tailstop.cells import read_log_cells
+    from tailstop.sheet.cells import read_log_cells
 
     rng = np.random.default_rng(13)
     kinds = [lambda: float(rng.gamma(2.0, 100.0)), lambda: int(rng.integers(1, 900)), lambda: None, lambda: "",

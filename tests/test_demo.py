@@ -8,8 +8,8 @@ import openpyxl
 import pytest
 from scipy import special, stats
 
-from tailstop import scenario
-from tailstop.cli import main
+from tailstop.workbooks import scenario
+from tailstop.commands import main
 from tailstop.sheet import STOP_DECISION, UNITS_NEEDED_NOW
 from tailstop.workbooks.demo_books import LOG_BOOK, PLAN_BOOK, build_demo, deterministic_bytes, log_book, plan_book
 from tailstop.workbooks.recalc import evaluate_workbook

@@ -320,17 +320,18 @@ def test_column_b_is_column_a_run_as_a_pass_fail_test():
 
 
 def test_limits_quoted_on_the_page_are_the_code_s():
-    from tailstop import fit, sheet_planning
+    from tailstop.core.models.gamma import fit
+    from tailstop.sheet import planning
 
     said = " ".join(TEXT.split())
     samples = inspect.signature(fit.gamma_fit_pvalue).parameters["samples"].default
     assert samples == 999 and "999 simulated samples" in said
     assert f"more than about {round(fit.GOF_VALUE_BUDGET / samples, -3):,.0f} units" in said
     assert f"more than {fit.GOF_VALUE_BUDGET // fit.GOF_MIN_SAMPLES:,} units are refused" in said
-    limits = (f"exact plans up to {sheet_planning.EXACT_UNITS_LIMIT:,} units, at most "
-              f"{sheet_planning.REPLICATIONS_LIMIT:,} replications, and at most "
-              f"{sheet_planning.WORK_LIMIT['known-shape']:,} (known-shape) or "
-              f"{sheet_planning.WORK_LIMIT['fitted-shape']:,} (fitted-shape) replications × units per run")
+    limits = (f"exact plans up to {planning.EXACT_UNITS_LIMIT:,} units, at most "
+              f"{planning.REPLICATIONS_LIMIT:,} replications, and at most "
+              f"{planning.WORK_LIMIT['known-shape']:,} (known-shape) or "
+              f"{planning.WORK_LIMIT['fitted-shape']:,} (fitted-shape) replications × units per run")
     assert limits in said
-    assert set(sheet_planning.DEFAULT_REPLICATIONS.values()) == {10_000} and "(default 10,000" in said
-    assert f"a whole number from 2 to {sheet_planning.EXACT_UNITS_LIMIT:,}" in said
+    assert set(planning.DEFAULT_REPLICATIONS.values()) == {10_000} and "(default 10,000" in said
+    assert f"a whole number from 2 to {planning.EXACT_UNITS_LIMIT:,}" in said

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from tailstop import notes, operating
+from tailstop.core import notes, operating
 from tailstop.sheet import PLAN_SUMMARY_FROM_P, TAIL_PROB, UNITS_REQUIRED
 
 DOCS = Path(__file__).resolve().parents[1] / "docs"

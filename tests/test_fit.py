@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from tailstop.fit import fit_gamma, gamma_fit_pvalue, log_minus_digamma, shape_from_log_ratio, trigamma_excess
-from tailstop.methods import SufficientStatistics
+from tailstop.core.models.gamma.fit import fit_gamma, gamma_fit_pvalue, log_minus_digamma, shape_from_log_ratio, trigamma_excess
+from tailstop.core.methods import SufficientStatistics
 
 
 @pytest.mark.parametrize("shape", [0.2, 0.9, 2.5, 30.0, 800.0])
@@ -74,7 +74,7 @@ def test_pvalue_is_scipy_goodness_of_fit_and_is_seeded(shape, size, seed):
 
 
 def test_the_statistic_and_the_batches_do_not_change_the_pvalue(monkeypatch):
-    import tailstop.fit as fit
+    import tailstop.core.models.gamma.fit as fit
 
     x = np.random.default_rng(2).gamma(1.7, 3.0, size=50)
     # check value: scipy's Anderson-Darling statistic of goodness_of_fit against the gamma fitted by scipy
@@ -96,7 +96,7 @@ def test_pvalue_detects_a_clearly_non_gamma_sample():
 
 def test_long_logs_use_fewer_samples_and_the_longest_are_refused():
     # memory and time of the Monte Carlo check are bounded by GOF_VALUE_BUDGET values
-    from tailstop.fit import GOF_MIN_SAMPLES, GOF_VALUE_BUDGET, gof_samples
+    from tailstop.core.models.gamma.fit import GOF_MIN_SAMPLES, GOF_VALUE_BUDGET, gof_samples
 
     assert gof_samples(40) == 999
     assert gof_samples(100_000) * 100_000 <= GOF_VALUE_BUDGET

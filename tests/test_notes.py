@@ -15,7 +15,7 @@ import pytest
 from scipy import stats
 
 from tailstop import sheet
-from tailstop.notes import NO_NOTES_TEXT, method_notes, note_lines, shape_likelihood_ratio
+from tailstop.core.notes import NO_NOTES_TEXT, method_notes, note_lines, shape_likelihood_ratio
 from tailstop.sheet import TAIL_METHOD_NOTES
 
 Z95 = 1.959964  # check value: NIST/SEMATECH §1.3.6.7.1, two-sided 95 %
@@ -74,7 +74,7 @@ def test_pass_fail_needs_no_fit_check(two_cluster_log):
 
 
 def test_a_log_too_long_for_the_fit_check_says_the_check_was_skipped(gamma_log, monkeypatch):
-    from tailstop import fit
+    from tailstop.core.models.gamma import fit
 
     # shrink the check's budget so that this 60-unit log is "too long" for it
     monkeypatch.setattr(fit, "GOF_VALUE_BUDGET", fit.GOF_MIN_SAMPLES * (gamma_log.size - 1))

@@ -20,10 +20,11 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from tailstop import operating as op
-from tailstop import rule
-from tailstop.methods import SufficientStatistics, model_sigma2
-from tailstop.tail import tail_probability
+from tailstop.core import operating as op
+from tailstop.core.operating import monte_carlo
+from tailstop.core import rule
+from tailstop.core.methods import SufficientStatistics, model_sigma2
+from tailstop.core.models.gamma.tail import tail_probability
 
 Z95 = 1.959964   # check value: NIST/SEMATECH §1.3.6.7.1, two-sided 95 %
 Z90 = 1.644854   # check value: NIST/SEMATECH §1.3.6.7.1, two-sided 90 %
@@ -254,11 +255,11 @@ def test_fitted_shape_screen_gives_exactly_the_runs_of_rule_stops_everywhere(sha
 
 
 def test_fitted_shape_screen_checks_its_table_against_the_rule(monkeypatch):
-    plan = op._Plan(1000.0, 2.0, 600.0, "fitted-shape", 1.3, 0.95, 5, 1000, 1, 0.5)
-    assert op._FittedShapeScreen(plan).valid
+    plan = monte_carlo._Plan(1000.0, 2.0, 600.0, "fitted-shape", 1.3, 0.95, 5, 1000, 1, 0.5)
+    assert monte_carlo._FittedShapeScreen(plan).valid
     real = rule.rule_sigma2
     monkeypatch.setattr(rule, "rule_sigma2", lambda s, *a, **k: real(s, *a, **k) * 1.01)
-    assert not op._FittedShapeScreen(plan).valid
+    assert not monte_carlo._FittedShapeScreen(plan).valid
 
 
 def test_screen_switches_itself_off_if_the_rule_changes(monkeypatch):
@@ -266,10 +267,10 @@ def test_screen_switches_itself_off_if_the_rule_changes(monkeypatch):
     threshold, shape, scale, accuracy = known_shape_plan(100)
     real = rule.rule_sigma2
     monkeypatch.setattr(rule, "rule_sigma2", lambda s, *a, **k: real(s, *a, **k) * (1 + 10 / np.asarray(s.n)))
-    plan = op._Plan(threshold, shape, scale, "known-shape", accuracy, 0.95, 5, 1000, 1, 0.5)
-    assert not op._KnownShapeScreen(plan).valid
+    plan = monte_carlo._Plan(threshold, shape, scale, "known-shape", accuracy, 0.95, 5, 1000, 1, 0.5)
+    assert not monte_carlo._KnownShapeScreen(plan).valid
     monkeypatch.setattr(rule, "rule_sigma2", real)
-    assert op._KnownShapeScreen(plan).valid
+    assert monte_carlo._KnownShapeScreen(plan).valid
 
 
 def test_simulation_is_reproducible_for_a_seed():
@@ -296,8 +297,8 @@ def test_simulation_agrees_with_the_per_replication_loop(method):
 
 def test_chunks_and_blocks_keep_the_figures(monkeypatch):
     # many small chunks and short blocks: the pass-fail simulation must still match the exact figures
-    monkeypatch.setattr(op, "_CHUNK_REPLICATIONS", 700)
-    monkeypatch.setattr(op, "_LONGEST_BLOCK", 5)
+    monkeypatch.setattr(monte_carlo, "_CHUNK_REPLICATIONS", 700)
+    monkeypatch.setattr(monte_carlo, "_LONGEST_BLOCK", 5)
     p = float(tail_probability(1000.0, 2.0, 600.0).p)
     exact = op.pass_fail_exact(p, 1.6, 0.95, 4)
     simulated = op.simulate(1000.0, 2.0, 600.0, 1.6, 0.95, 4, "pass-fail", replications=5000, seed=2)

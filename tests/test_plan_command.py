@@ -7,9 +7,9 @@ import math
 
 import pytest
 
-from tailstop import operating
-from tailstop.cli import main
-from tailstop.plan_command import ProgressBar
+from tailstop.core import operating
+from tailstop.commands import main
+from tailstop.commands.plan import ProgressBar
 
 PLAN = ["plan", "--threshold", "1000", "--shape", "2", "--scale", "600", "--accuracy", "1.6",
         "--confidence", "0.95", "--pilot", "8", "--replications", "2000", "--fitted-replications", "150"]

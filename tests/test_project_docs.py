@@ -31,7 +31,7 @@ def test_readme_lists_every_formula_with_its_arguments():
 
 def quick_look():
     """The README's quick-look block, computed from the demo scenario by the formulas."""
-    from tailstop import scenario
+    from tailstop.workbooks import scenario
     from tailstop.sheet import STOP_DECISION_COLUMN, TAIL_PROB_BOUNDS, TAIL_PROB_EST
 
     log = scenario.bench_log()

@@ -5,7 +5,7 @@ import openpyxl
 import pytest
 from scipy import stats
 
-from tailstop.cli import main
+from tailstop.commands import main
 
 
 def make_book(path):

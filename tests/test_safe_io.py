@@ -213,7 +213,7 @@ CHILD = textwrap.dedent("""
 # the same, through annotate's byte editor for long logs (it inspects with larger part and cell limits)
 STREAM_CHILD = CHILD.replace(
     "from tailstop.workbooks.safe_io import WorkbookRefused, open_workbook_safely",
-    "from tailstop.annotate import AnnotateRefused, annotate\n"
+    "from tailstop.workbooks.annotate import AnnotateRefused, annotate\n"
     "from tailstop.workbooks.log_layout import RulePlan\n"
     "from tailstop.workbooks.safe_io import WorkbookRefused").replace(
     "open_workbook_safely(sys.argv[1])",

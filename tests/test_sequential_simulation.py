@@ -31,8 +31,8 @@ import mpmath
 import numpy as np
 import pytest
 
-from tailstop.methods import estimate_tail
-from tailstop.sequential import stopping_units
+from tailstop.core.methods import estimate_tail
+from tailstop.core.sequential import stopping_units
 
 SHAPE, SCALE, THRESHOLD = 2.0, 500.0, 1200.0
 ACCURACY, CONFIDENCE, PILOT = 1.1, 0.95, 20

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from tailstop.tail import tail_probability
+from tailstop.core.models.gamma.tail import tail_probability
 
 mpmath.mp.dps = 50
 

@@ -7,7 +7,7 @@ import mpmath
 import numpy as np
 import pytest
 
-from tailstop.variance import log_odds_shape_derivative, sigma2_fitted_shape, sigma2_known_shape, sigma2_pass_fail
+from tailstop.core.models.gamma.variance import log_odds_shape_derivative, sigma2_fitted_shape, sigma2_known_shape, sigma2_pass_fail
 
 mpmath.mp.dps = 40
 
@@ -65,7 +65,7 @@ def test_fitting_the_shape_costs_variance():
 
 def test_known_shape_variance_by_simulation():
     # common practice: the delta-method variance is checked against the spread of simulated estimates
-    from tailstop.methods import SufficientStatistics, estimate_from_statistics
+    from tailstop.core.methods import SufficientStatistics, estimate_from_statistics
 
     rng = np.random.default_rng(21)
     a, s, c, n = 2.0, 1.0, 3.0, 400

@@ -15,7 +15,7 @@ import pytest
 from openpyxl.utils.cell import get_column_letter
 
 from libreoffice import LibreOfficeFailed, convert_with_libreoffice, find_soffice
-from tailstop.annotate import annotate
+from tailstop.workbooks.annotate import annotate
 from tailstop.workbooks.cached_values import EXCEL_ERRORS
 from tailstop.workbooks.demo_books import LOG_BOOK, PLAN_BOOK, build_demo
 from test_annotate import LOG_SHEET, bench_lifetimes, plan, rich_log

@@ -18,7 +18,7 @@ import types
 import pytest
 
 import tailstop.sheet as sheet
-from tailstop.formula import apply_xlwings
+from tailstop.sheet.formula import apply_xlwings
 
 # Words VBA reserves (Microsoft VBA language reference, keywords list; common practice to avoid them
 # as parameter names since the generated wrapper would not compile).

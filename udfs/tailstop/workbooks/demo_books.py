@@ -45,8 +45,8 @@ from openpyxl.formatting.rule import FormulaRule
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils.cell import get_column_letter
 
-from .. import scenario
-from ..notes import NO_NOTES_TEXT
+from ..core.notes import NO_NOTES_TEXT
+from . import scenario
 from .cached_values import save_with_cached_values, set_formula
 from .log_layout import (
     HEADER_FILL,

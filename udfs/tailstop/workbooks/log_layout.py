@@ -28,10 +28,10 @@ from openpyxl.formatting.rule import CellIsRule
 from openpyxl.styles import Font, PatternFill
 from openpyxl.utils.cell import get_column_letter
 
-from .. import cells
-from ..methods import METHOD_NAMES
-from ..notes import method_notes, note_lines
-from ..rule import MIN_PILOT
+from ..core.methods import METHOD_NAMES
+from ..core.notes import method_notes, note_lines
+from ..core.rule import MIN_PILOT
+from ..sheet import cells
 from . import row_cells
 from .cached_values import set_formula
 from .cell_check import collector_paused, sheet_reference

@@ -24,7 +24,13 @@ import defusedxml.ElementTree
 import openpyxl
 import openpyxl.xml.functions
 
-from .package import GRID_COLUMNS, Limits, WorkbookRefused, column_number, inspect_package
+from .package import (
+    GRID_COLUMNS,
+    Limits,
+    WorkbookRefused,
+    column_number,
+    inspect_package,
+)
 
 __all__ = [
     "WorkbookRefused",

@@ -282,7 +282,9 @@ def cell_markup(coordinate: str, style: int, data_type: str, value, cached=None)
     ``data_type`` as openpyxl's: 'n' number, 's' text, 'b' boolean, 'f'
     formula (``value`` starts with '='; ``cached`` is its stored result).
     """
-    from .cached_values import _serialize  # the same serialisation as the cached-value writer
+    from .cached_values import (
+        _serialize,  # the same serialisation as the cached-value writer
+    )
 
     attributes = f'<c r="{coordinate}"' + (f' s="{style}"' if style else "")
     if value is None:

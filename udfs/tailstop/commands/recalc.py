@@ -4,15 +4,15 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from .cli import command
-
 
 def default_output(book: Path) -> Path:
     """BOOK.xlsx -> BOOK-recalc.xlsx beside it."""
     return book.with_name(f"{book.stem}-recalc{book.suffix}")
 
 
-@command("recalc", "Evaluate the tailstop and ordinary formulas of a workbook and store the results beside them.")
+HELP = "Evaluate the tailstop and ordinary formulas of a workbook and store the results beside them."
+
+
 def add_arguments(parser):
     parser.add_argument("book", type=Path, help="the .xlsx workbook to compute")
     parser.add_argument("--out", type=Path, help="where to write the result (default: BOOK-recalc.xlsx beside it)")
@@ -24,8 +24,8 @@ def add_arguments(parser):
 
 
 def run(args):
-    from .workbooks.package import WorkbookRefused
-    from .workbooks.recalc import recalc
+    from ..workbooks.package import WorkbookRefused
+    from ..workbooks.recalc import recalc
 
     if args.no_backup and not args.in_place:
         raise ValueError("--no-backup goes with --in-place")

@@ -1,8 +1,8 @@
 """docs/worked-example.md, written from the demo scenario by the public formulas.
 
-    python -m tailstop.worked_example > docs/worked-example.md
+    python docs/tools/worked_example.py > docs/worked-example.md
 
-Every number on the page is computed here from ``tailstop.scenario`` (the
+Every number on the page is computed here from ``tailstop.workbooks.scenario`` (the
 invented bench test of solenoid valves) through the spreadsheet formulas of
 ``tailstop.sheet`` and the ``tailstop plan`` command, the way an engineer
 would get them; nothing is typed in. A test regenerates the page and compares
@@ -20,11 +20,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import scenario
-from .accuracy import critical_value
-from .notes import method_notes
-from .rule import boundary_factor
-from .sequential import units_needed_now
+from tailstop.workbooks import scenario
+from tailstop.core.accuracy import critical_value
+from tailstop.core.notes import method_notes
+from tailstop.core.rule import boundary_factor
+from tailstop.core.sequential import units_needed_now
 
 __all__ = ["Story", "tell", "render", "main"]
 
@@ -82,7 +82,7 @@ def _column(values):
 
 def _plan_output(argv):
     """What `tailstop plan ARGV` prints (its progress bar discarded)."""
-    from . import plan_command
+    from tailstop.commands import plan as plan_command
 
     parser = argparse.ArgumentParser(prog="tailstop plan")
     run = plan_command.add_arguments(parser)
@@ -104,7 +104,7 @@ def _first(cells):
 
 def tell() -> Story:
     """Compute every number of the worked example from the scenario."""
-    from .sheet import (GAMMA_FIT_PVALUE, GAMMA_FIT_SCALE, GAMMA_FIT_SHAPE, PLAN_SUMMARY, PLAN_SUMMARY_FROM_P,
+    from tailstop.sheet import (GAMMA_FIT_PVALUE, GAMMA_FIT_SCALE, GAMMA_FIT_SHAPE, PLAN_SUMMARY, PLAN_SUMMARY_FROM_P,
                         STOP_DECISION_COLUMN, TAIL_METHOD_NOTES, TAIL_ODDS_BOUNDS, TAIL_PROB, TAIL_PROB_BOUNDS,
                         TAIL_PROB_EST, TWO_STAGE_UNITS, UNITS_NEEDED_NOW, UNITS_REQUIRED)
 
@@ -230,8 +230,8 @@ def render(story: Story | None = None) -> str:
     parts = []
     add = parts.append
 
-    from .demo import DEFAULT_FOLDER as folder
-    from .workbooks.demo_books import LOG_BOOK as log_book, PLAN_BOOK as plan_book
+    from tailstop.commands.demo import DEFAULT_FOLDER as folder
+    from tailstop.workbooks.demo_books import LOG_BOOK as log_book, PLAN_BOOK as plan_book
 
     add(f"""# Worked example: solenoid valves on a cycling bench
 
@@ -243,8 +243,8 @@ decision column, running estimate and charts) and `{plan_book}` (the
 planning sheet). The cell addresses on this page are those of a log with the
 lifetimes in column B from row 2 and the plan in F1:F4.
 Every number below is computed by tailstop's formulas from that scenario
-(`udfs/tailstop/scenario.py`): the page is written by
-`python -m tailstop.worked_example`, and a test checks that it matches the
+(`udfs/tailstop/workbooks/scenario.py`): the page is written by
+`python docs/tools/worked_example.py`, and a test checks that it matches the
 code. Read [cautions.md](cautions.md) alongside; the formulas are described
 in [formulas.md](formulas.md), the method in [method.md](method.md).
 
@@ -397,7 +397,7 @@ probability between {low:.4f} and {high:.4f}.
 
 The headless tools, which also know the accuracy and the confidence, check in
 addition that the log holds the units the accuracy needs
-(`tailstop.notes.method_notes(..., accuracy={d}, confidence={level})`):
+(`tailstop.core.notes.method_notes(..., accuracy={d}, confidence={level})`):
 {_headless_verdict(s.headless_notes)}
 
 **The cross-check.** On the same {s.stop} valves, fitted-shape gives

@@ -14,9 +14,8 @@ import time
 import numpy as np
 from scipy import special
 
-from . import operating
-from .cli import command
-from .tail import tail_probability
+from ..core import operating
+from ..core.models.gamma.tail import tail_probability
 
 __all__ = ["ProgressBar", "add_arguments", "run"]
 
@@ -53,7 +52,9 @@ class ProgressBar:
             self.stream.flush()
 
 
-@command("plan", "What the sequential stopping rule will do under a planning guess: the three methods side by side.")
+HELP = "What the sequential stopping rule will do under a planning guess: the three methods side by side."
+
+
 def add_arguments(parser):
     parser.add_argument("--threshold", type=float, required=True, help="the threshold c (mission time, warranty limit)")
     parser.add_argument("--shape", type=float, required=True, help="guessed gamma shape a > 0")

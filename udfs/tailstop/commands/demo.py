@@ -10,15 +10,16 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from . import scenario
-from .cli import command
+from ..workbooks import scenario
 
 __all__ = ["DEFAULT_FOLDER", "add_arguments", "run", "summary"]
 
 DEFAULT_FOLDER = "workbooks_demo"
 
 
-@command("demo", "Build the demo workbooks (an invented valve bench test) and print what they show.")
+HELP = "Build the demo workbooks (an invented valve bench test) and print what they show."
+
+
 def add_arguments(parser):
     parser.add_argument("--out", metavar="DIR", default=DEFAULT_FOLDER,
                         help=f"folder for the books (default: {DEFAULT_FOLDER}/ in the current folder)")
@@ -26,7 +27,7 @@ def add_arguments(parser):
 
 
 def run(args, out=None):
-    from .workbooks.demo_books import build_demo
+    from ..workbooks.demo_books import build_demo
 
     out = out or sys.stdout
     result = build_demo(Path(args.out))
@@ -40,7 +41,7 @@ def _number(value, digits=4):
 
 def summary(result) -> str:
     """What ``tailstop demo`` prints: units tested, the decision row, the estimate, the warnings, the plan."""
-    from .workbooks.demo_books import notes_text
+    from ..workbooks.demo_books import notes_text
 
     analysis, log = result.analysis, result.log
     plan, figures = analysis.plan, analysis.figures

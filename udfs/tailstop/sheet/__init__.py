@@ -8,8 +8,13 @@ starting with ``#TAILSTOP!`` that says what to fix; none ever raises.
 """
 from __future__ import annotations
 
-from .formula import FORMULAS
-from .sheet_estimate import (  # noqa: F401
+from .decisions import (  # noqa: F401
+    STOP_DECISION,
+    STOP_DECISION_COLUMN,
+    TWO_STAGE_UNITS,
+    UNITS_NEEDED_NOW,
+)
+from .estimate import (  # noqa: F401
     ACCURACY_FOR_UNITS,
     GAMMA_FIT_PVALUE,
     GAMMA_FIT_SCALE,
@@ -21,14 +26,9 @@ from .sheet_estimate import (  # noqa: F401
     UNITS_REQUIRED,
     UNITS_REQUIRED_FROM_P,
 )
-from .sheet_decisions import (  # noqa: F401
-    STOP_DECISION,
-    STOP_DECISION_COLUMN,
-    TWO_STAGE_UNITS,
-    UNITS_NEEDED_NOW,
-)
-from .sheet_notes import TAIL_METHOD_NOTES  # noqa: F401
-from .sheet_planning import (  # noqa: F401
+from .formula import FORMULAS
+from .notes import TAIL_METHOD_NOTES  # noqa: F401
+from .planning import (  # noqa: F401
     PLAN_COVERAGE,
     PLAN_EXPECTED_UNITS,
     PLAN_SUMMARY,

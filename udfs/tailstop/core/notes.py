@@ -38,8 +38,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special, stats
 
-from .fit import gamma_fit_pvalue, shape_from_log_ratio
 from .methods import METHOD_NAMES, SufficientStatistics, estimate_tail
+from .models.gamma.fit import gamma_fit_pvalue, shape_from_log_ratio
 from .sequential import units_needed_now
 
 __all__ = [

@@ -25,14 +25,18 @@ import defusedxml.ElementTree
 import openpyxl
 from openpyxl.styles import Font, PatternFill
 from openpyxl.styles.fills import Fill
-from openpyxl.styles.numbers import BUILTIN_FORMATS, BUILTIN_FORMATS_MAX_SIZE, BUILTIN_FORMATS_REVERSE
+from openpyxl.styles.numbers import (
+    BUILTIN_FORMATS,
+    BUILTIN_FORMATS_MAX_SIZE,
+    BUILTIN_FORMATS_REVERSE,
+)
 from openpyxl.styles.stylesheet import Stylesheet
 from openpyxl.xml.functions import tostring
 
-from .annotate import AnnotateRefused, AnnotateResult, check_log_column, place_columns
-from .workbooks import cell_check
-from .workbooks import sheet_stream as ss
-from .workbooks.log_layout import (
+from . import cell_check
+from . import sheet_stream as ss
+from .annotation import AnnotateRefused, AnnotateResult, check_log_column, place_columns
+from .log_layout import (
     LogRange,
     analyse_log,
     decision_cell,
@@ -42,8 +46,8 @@ from .workbooks.log_layout import (
     write_decision_header,
     write_estimate_block,
 )
-from .workbooks.package import Limits, WorkbookRefused, inspect_package
-from .workbooks.safe_io import column_from_headers, write_file_atomically
+from .package import Limits, WorkbookRefused, inspect_package
+from .safe_io import column_from_headers, write_file_atomically
 
 __all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable"]
 

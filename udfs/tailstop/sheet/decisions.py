@@ -28,11 +28,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..core.rule import MIN_PILOT
+from ..core.sequential import decision_column, two_stage_plan, units_needed_now
 from . import cells
+from .estimate import HELP, clean_method_and_shape
 from .formula import formula
-from .rule import MIN_PILOT
-from .sequential import decision_column, two_stage_plan, units_needed_now
-from .sheet_estimate import HELP, clean_method_and_shape
 
 # Larger whole numbers are refused as typing errors (a sheet column has 1,048,576 rows).
 _LARGEST_COUNT = 10**9

@@ -32,93 +32,33 @@ checks the written file slice by slice before it is moved into place.
 """
 from __future__ import annotations
 
-import functools
 import hashlib
 import io
-import sys
 import tempfile
-from dataclasses import dataclass
 from pathlib import Path
 
-from openpyxl.utils.cell import get_column_letter
-
-from . import cells
-from .cli import command
-from .workbooks import cell_check
-from .workbooks.cached_values import save_with_cached_values
-from .workbooks.log_layout import (
-    DECISION_HEADER,
-    LIVE_NOTE_LINES,
-    LogAnalysis,
-    LogProblem,
-    LogRange,
+from . import cell_check
+from .annotation import (
+    AnnotateRefused,
+    AnnotateResult,
+    check_log_column,
+    default_output,
+    place_columns,
+)
+from .cached_values import save_with_cached_values
+from .log_layout import (
     RulePlan,
     analyse_log,
-    block_layout,
     read_log_range,
     set_width,
     sheet_reference,
     write_decision_column,
     write_estimate_block,
 )
-from .workbooks.package import GRID_COLUMNS, WorkbookRefused
-from .workbooks.row_cells import append_to_sheet
-from .workbooks.safe_io import open_workbook_safely, resolve_column, write_file_atomically
+from .row_cells import append_to_sheet
+from .safe_io import open_workbook_safely, resolve_column, write_file_atomically
 
-__all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "summary", "add_arguments", "run",
-           "check_log_column", "place_columns"]
-
-OUTPUT_SUFFIX = "-tailstop"
-BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
-
-
-class AnnotateRefused(ValueError):
-    """The log was not annotated; the message says why and what to do."""
-
-
-@dataclass(frozen=True)
-class AnnotateResult:
-    """What ``annotate`` wrote.
-
-    Attributes
-    ----------
-    path, backup : pathlib.Path, pathlib.Path or None
-    log : LogRange
-        The log column that was read.
-    decision_column : int
-    block : str
-        The estimate block's range, e.g. ``'G1:H27'``.
-    analysis : LogAnalysis
-    cells_checked : int
-        Pre-existing non-empty cells found unchanged in the written book.
-    sheets_checked : int
-    losses : list of str
-        What was given up with ``allow_lossy`` (empty otherwise).
-    live : bool
-    copied_parts : int or None
-        For a long log edited as bytes (``annotate_stream``): the parts of the
-        package copied unchanged (checked by size and CRC); ``cells_checked``
-        then counts the log sheet's cells. None when the book went through openpyxl.
-    """
-
-    path: Path
-    backup: Path | None
-    log: LogRange
-    decision_column: int
-    block: str
-    analysis: LogAnalysis
-    cells_checked: int
-    sheets_checked: int
-    losses: list
-    live: bool
-    copied_parts: int | None = None
-
-
-def default_output(source) -> Path:
-    """``LOG-tailstop.xlsx`` beside ``LOG.xlsx``."""
-    source = Path(source)
-    return source.with_name(f"{source.stem}{OUTPUT_SUFFIX}.xlsx")
-
+__all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "check_log_column", "place_columns"]
 
 def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=False, backup=True, live=False,
              allow_lossy=False, streaming=None) -> AnnotateResult:
@@ -206,17 +146,6 @@ def _add(worksheet, log, values, analysis, live, cached):
     return decision_column, layout, {row: cell for row, (cell, _) in markup.items()}, added
 
 
-def place_columns(title, max_column, analysis, live):
-    """The decision column right of everything on the sheet, then the estimate block's label column and layout."""
-    decision_column = max_column + 1
-    label_column = decision_column + 1 + BLOCK_GAP
-    if label_column + 1 > GRID_COLUMNS:
-        raise AnnotateRefused(f"sheet {title!r} has no free columns on the right for the decision column and "
-                              "the estimate block")
-    layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
-    return decision_column, label_column, layout
-
-
 def _target(source, out, in_place):
     if in_place and out is not None:
         raise AnnotateRefused("give either --out or --in-place, not both")
@@ -266,16 +195,6 @@ def _log_column(worksheet, column):
     return log, values
 
 
-def check_log_column(log, header_value):
-    """Refuse a log column without a header or without a log."""
-    if isinstance(header_value, (int, float)) and not isinstance(header_value, bool):
-        raise AnnotateRefused(f"{log.address(1)} holds {header_value:g}: row 1 must hold the column's header, "
-                              "with the log from row 2 down; insert a header row")
-    if log.rows == 0:
-        raise AnnotateRefused(f"{log.address(2)} and the rows below are empty: no log to annotate in column "
-                              f"{log.letter} of sheet {log.sheet_title!r}")
-
-
 def _rows_written_anyway(log, values, layout):
     """Log rows below the estimate block whose log cell holds a value: their decision can be appended as markup."""
     first = max(log.first_row, layout.last_row + 1)
@@ -319,107 +238,3 @@ def _verify(data, before, expected, source):
 def _check_written(path, data):
     if hashlib.sha256(Path(path).read_bytes()).digest() != hashlib.sha256(data).digest():
         raise OSError(f"{path} does not hold the bytes that were checked; do not use it")
-
-
-# --------------------------------------------------------------------------- command line
-
-
-@command("annotate", "Add the stop/continue decision column and the estimate block to a test log (.xlsx).")
-def add_arguments(parser):
-    parser.add_argument("log", metavar="LOG.xlsx", help="the test log, one unit per row, header in row 1")
-    parser.add_argument("--sheet", help="the sheet holding the log (default: the active sheet)")
-    parser.add_argument("--column", required=True,
-                        help="the lifetime column: a letter (B) or the header text of row 1")
-    parser.add_argument("--threshold", required=True, help="the threshold c (mission time, warranty limit), "
-                                                           "in the unit of the lifetimes")
-    parser.add_argument("--accuracy", required=True, help="odds to be known within this factor d > 1, e.g. 1.5")
-    parser.add_argument("--confidence", default="0.95", help="confidence level, e.g. 0.95 (default)")
-    parser.add_argument("--pilot", required=True, help="units tested before the rule is first consulted (>= 2)")
-    parser.add_argument("--method", default="pass-fail", help="pass-fail (default), known-shape or fitted-shape")
-    parser.add_argument("--shape", help="the gamma shape, for known-shape")
-    parser.add_argument("--check-every", default="1", help="consult the rule every k-th unit after the pilot "
-                                                          "(default 1)")
-    parser.add_argument("--out", metavar="NEW.xlsx", help="where to write (default: LOG-tailstop.xlsx beside the "
-                                                          "log); an existing file is never overwritten")
-    parser.add_argument("--in-place", action="store_true", help="replace the log itself (a backup is kept)")
-    parser.add_argument("--no-backup", action="store_true", help="with --in-place: keep no backup")
-    parser.add_argument("--live", action="store_true",
-                        help="write tailstop formulas (with their values stored) instead of values")
-    parser.add_argument("--allow-lossy", action="store_true",
-                        help="go on although openpyxl would drop some content of the book (listed); long "
-                             "logs are edited as a stream, lose nothing and never need this")
-    parser.error = functools.partial(_usage_error, parser)
-    return run
-
-
-def _usage_error(parser, message):
-    """A missing or malformed option is bad input too: exit code 1, as for every refusal."""
-    parser.print_usage(sys.stderr)
-    parser.exit(1, f"tailstop annotate: {message}\n")
-
-
-def run(args, out=None, err=None):
-    out, err = out or sys.stdout, err or sys.stderr
-    try:
-        if args.no_backup and not args.in_place:
-            raise AnnotateRefused("--no-backup applies to --in-place only")
-        plan = RulePlan.checked(args.threshold, args.accuracy, args.confidence, args.pilot, args.method,
-                                args.shape, args.check_every)
-        result = annotate(args.log, column=args.column, plan=plan, sheet=args.sheet, out=args.out,
-                          in_place=args.in_place, backup=not args.no_backup, live=args.live,
-                          allow_lossy=args.allow_lossy)
-    except (AnnotateRefused, WorkbookRefused, LogProblem, cells.InputError, FileExistsError) as problem:
-        print(f"tailstop annotate: {_cli_text(problem)}", file=err)
-        return 1
-    except OSError as problem:
-        print(f"tailstop annotate: {problem}", file=err)
-        return 1
-    print(summary(result), file=out)
-    return 0
-
-
-def _cli_text(problem):
-    text = str(problem)
-    return text.replace("accept the loss (allow_lossy)", "accept the loss with --allow-lossy")
-
-
-def summary(result: AnnotateResult) -> str:
-    """The lines ``tailstop annotate`` prints."""
-    analysis, log = result.analysis, result.log
-    figures = analysis.figures
-    lines = [f"Annotated {log.text()} ({analysis.units} units) -> {result.path}"]
-    lines.append(f"  rule: {analysis.plan.describe()}")
-    if analysis.stopped:
-        row = log.first_row + analysis.stop_offset
-        lines.append(f"  decision: STOP at row {row}, after {analysis.units_used} units")
-    else:
-        lines.append(f"  decision: {analysis.last_decision or 'CONTINUE'} - the rule has not stopped after "
-                     f"{analysis.units} units; the estimate below uses them all and the accuracy is not reached yet")
-    lines.append(f"  estimate: P(life > {analysis.plan.threshold:g}) = {_figure(figures['estimate'])}, "
-                 f"bounds {_figure(figures['p_low'])} .. {_figure(figures['p_high'])}; odds "
-                 f"{_figure(figures['odds'])} ({_figure(figures['odds_low'])} .. {_figure(figures['odds_high'])})")
-    for note in analysis.notes:
-        lines.append(f"  warning: {note}" if note != "no warnings for this log and method" else f"  {note}")
-    column = f"{sheet_reference(log.sheet_title)}!{get_column_letter(result.decision_column)}"
-    mode = "tailstop formulas with cached values" if result.live else "values"
-    lines.append(f"  wrote: decision column {column} ({DECISION_HEADER!r}), estimate block {result.block}, as {mode}")
-    if result.copied_parts is None:
-        lines.append(f"  checked: all {result.cells_checked:,} cells of {result.sheets_checked} sheet"
-                     f"{'s' if result.sheets_checked != 1 else ''} kept their values and formulas")
-    else:
-        lines.append(f"  checked: all {result.cells_checked:,} cells of {sheet_reference(log.sheet_title)} kept "
-                     f"their values and formulas; the other {result.copied_parts} parts of the book are copied "
-                     "unchanged (long log: edited as a stream)")
-    if result.backup is not None:
-        lines.append(f"  backup of the original: {result.backup}")
-    for loss in result.losses:
-        lines.append(f"  given up (--allow-lossy): {loss}")
-    return "\n".join(lines)
-
-
-def _figure(value):
-    if isinstance(value, float):
-        return f"{value:.4g}"
-    return str(value) if value != "" else "-"
-
-

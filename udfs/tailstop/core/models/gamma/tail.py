@@ -11,50 +11,16 @@ continued fraction (upper tail) or a power series (lower tail).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 from scipy import special
+
+from ...probability import TailProbability
 
 __all__ = ["TailProbability", "tail_probability", "log_density_term"]
 
 # Below this the tail is evaluated in logs so that subnormal numbers never
 # cost digits.
 _UNDERFLOW = 1e-290
-
-
-@dataclass(frozen=True)
-class TailProbability:
-    """Exceedance probability of a gamma lifetime and its complements in logs.
-
-    Attributes
-    ----------
-    p : ndarray
-        P(X > threshold), from the directly computed tail.
-    log_p : ndarray
-        log P(X > threshold).
-    log_cdf : ndarray
-        log P(X <= threshold) = log(1 - p).
-    """
-
-    p: np.ndarray
-    log_p: np.ndarray
-    log_cdf: np.ndarray
-
-    @property
-    def cdf(self) -> np.ndarray:
-        """P(X <= threshold) = 1 - p."""
-        return np.exp(self.log_cdf)
-
-    @property
-    def log_odds(self) -> np.ndarray:
-        """log(p / (1 - p))."""
-        return self.log_p - self.log_cdf
-
-    @property
-    def odds(self) -> np.ndarray:
-        """p / (1 - p)."""
-        return np.exp(self.log_odds)
 
 
 def log_density_term(shape, t):

@@ -13,9 +13,9 @@ from ``notes.method_notes(..., accuracy=, confidence=)``.
 """
 from __future__ import annotations
 
+from ..core.notes import method_notes, note_lines
+from .estimate import HELP, clean_log_arguments
 from .formula import formula
-from .notes import method_notes, note_lines
-from .sheet_estimate import HELP, clean_log_arguments
 
 
 @formula(

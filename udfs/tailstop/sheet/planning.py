@@ -10,12 +10,12 @@ from __future__ import annotations
 
 import math
 
-from . import accuracy as _accuracy
+from ..core import accuracy as _accuracy
+from ..core.methods import METHOD_NAMES, pass_fail_sigma2_from_p
+from ..core.operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
 from . import cells
+from .estimate import HELP, planning_sigma2
 from .formula import formula
-from .methods import METHOD_NAMES, pass_fail_sigma2_from_p
-from .operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
-from .sheet_estimate import HELP, planning_sigma2
 
 EXACT_UNITS_LIMIT = 10_000
 REPLICATIONS_LIMIT = 100_000

@@ -5,12 +5,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import accuracy as _accuracy
+from ..core import accuracy as _accuracy
+from ..core.methods import (
+    METHOD_NAMES,
+    estimate_tail,
+    model_sigma2,
+    pass_fail_sigma2_from_p,
+)
+from ..core.models.gamma.fit import fit_gamma, gamma_fit_pvalue
+from ..core.models.gamma.tail import tail_probability
 from . import cells
-from .fit import fit_gamma, gamma_fit_pvalue
 from .formula import formula
-from .methods import METHOD_NAMES, estimate_tail, model_sigma2, pass_fail_sigma2_from_p
-from .tail import tail_probability
 
 # Help texts shared by several formulas (the spreadsheet shows them per argument).
 HELP = {

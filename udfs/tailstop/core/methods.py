@@ -20,9 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import accuracy as _accuracy
-from .fit import shape_from_log_ratio
-from .tail import TailProbability, tail_probability, tail_probability_standard
-from .variance import sigma2_fitted_shape, sigma2_known_shape
+from .models import DEFAULT_MODEL, get_model
+from .probability import TailProbability
 
 __all__ = [
     "METHOD_NAMES",
@@ -161,17 +160,17 @@ class _KnownShape:
     needs_shape = True
     uses_lifetimes = True
 
-    def estimate(self, statistics, threshold, shape):
+    def estimate(self, statistics, threshold, shape, model):
         shape = np.asarray(shape, dtype=float)
-        scale = statistics.sum_x / (statistics.n * shape)
+        scale = model.scale_for_shape(statistics, shape)
         t = threshold / scale
         return TailEstimate(
-            self.name, statistics.n, tail_probability_standard(shape, t), sigma2_known_shape(shape, t),
+            self.name, statistics.n, model.tail_standard(shape, t), model.sigma2_known_shape(shape, t),
             shape=np.broadcast_to(shape, np.shape(t)), scale=scale,
         )
 
-    def model_sigma2(self, shape, t):
-        return sigma2_known_shape(shape, t)
+    def model_sigma2(self, shape, t, model):
+        return model.sigma2_known_shape(shape, t)
 
 
 class _PassFail:
@@ -179,7 +178,7 @@ class _PassFail:
     needs_shape = False
     uses_lifetimes = False
 
-    def estimate(self, statistics, threshold, shape=None):
+    def estimate(self, statistics, threshold, shape, model):
         n = np.asarray(statistics.n, dtype=float)
         k = np.asarray(statistics.exceedances, dtype=float)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -189,8 +188,8 @@ class _PassFail:
             sigma2 = n * n / (k * (n - k))
         return TailEstimate(self.name, statistics.n, TailProbability(p, log_p, log_cdf), sigma2)
 
-    def model_sigma2(self, shape, t):
-        tail = tail_probability_standard(shape, t)
+    def model_sigma2(self, shape, t, model):
+        tail = model.tail_standard(shape, t)
         with np.errstate(over="ignore"):
             return np.exp(-tail.log_p - tail.log_cdf)
 
@@ -200,23 +199,23 @@ class _FittedShape:
     needs_shape = False
     uses_lifetimes = True
 
-    def estimate(self, statistics, threshold, shape=None):
-        fitted = shape_from_log_ratio(statistics.log_ratio)
+    def estimate(self, statistics, threshold, shape, model):
+        fitted = model.fitted_shape(statistics)
         valid = np.isfinite(fitted)
         safe_shape = np.where(valid, fitted, 1.0)
-        scale = statistics.sum_x / (statistics.n * safe_shape)
+        scale = model.scale_for_shape(statistics, safe_shape)
         t = threshold / scale
-        tail = tail_probability_standard(safe_shape, t)
+        tail = model.tail_standard(safe_shape, t)
         nan = np.where(valid, 0.0, np.nan)
         return TailEstimate(
             self.name, statistics.n,
             TailProbability(tail.p + nan, tail.log_p + nan, tail.log_cdf + nan),
-            sigma2_fitted_shape(safe_shape, t) + nan,
+            model.sigma2_fitted_shape(safe_shape, t) + nan,
             shape=fitted, scale=scale + nan,
         )
 
-    def model_sigma2(self, shape, t):
-        return sigma2_fitted_shape(shape, t)
+    def model_sigma2(self, shape, t, model):
+        return model.sigma2_fitted_shape(shape, t)
 
 
 _METHODS = {m.name: m for m in (_KnownShape(), _PassFail(), _FittedShape())}
@@ -231,12 +230,13 @@ def get_method(name):
         raise ValueError(f"method must be one of {', '.join(METHOD_NAMES)} (got {name!r})") from None
 
 
-def estimate_from_statistics(statistics, threshold, method="pass-fail", shape=None) -> TailEstimate:
+def estimate_from_statistics(statistics, threshold, method="pass-fail", shape=None, model=DEFAULT_MODEL) -> TailEstimate:
     """Vectorized estimate over (possibly many) sets of sufficient statistics, unchecked."""
-    return get_method(method).estimate(statistics, threshold, shape)
+    return get_method(method).estimate(statistics, threshold, shape, get_model(model))
 
 
-def estimate_tail(observations, threshold, method="pass-fail", shape=None, survivors=None) -> TailEstimate:
+def estimate_tail(observations, threshold, method="pass-fail", shape=None, survivors=None,
+                  model=DEFAULT_MODEL) -> TailEstimate:
     """Estimate p = P(X > threshold) from one sample of lifetimes.
 
     Parameters
@@ -251,6 +251,8 @@ def estimate_tail(observations, threshold, method="pass-fail", shape=None, survi
     survivors : array_like of bool, optional
         Units taken off test at or beyond the threshold without failing
         (``pass-fail`` only): they count as beyond the threshold.
+    model : str
+        The lifetime model of the parametric methods (a name of ``core.models.MODELS``).
 
     Raises
     ------
@@ -258,13 +260,13 @@ def estimate_tail(observations, threshold, method="pass-fail", shape=None, survi
         With a message saying what to change, when the estimate does not
         exist for these data.
     """
-    model = get_method(method)
+    estimator, lifetime = get_method(method), get_model(model)
     x = np.asarray(observations, dtype=float).ravel()
-    _check_sample(x, threshold, model, shape, survivors)
+    _check_sample(x, threshold, estimator, shape, survivors)
     statistics = SufficientStatistics.of(x, threshold, survivors)
-    if model.name == "fitted-shape" and not statistics.log_ratio > 1e-13:
+    if estimator.name == "fitted-shape" and not statistics.log_ratio > 1e-13:
         raise ValueError("all lifetimes are equal (or nearly): the gamma shape cannot be estimated")
-    result = model.estimate(statistics, threshold, shape)
+    result = estimator.estimate(statistics, threshold, shape, lifetime)
     return _as_scalars(result)
 
 
@@ -292,11 +294,12 @@ def _as_scalars(result: TailEstimate) -> TailEstimate:
     )
 
 
-def model_sigma2(method, threshold, shape, scale):
-    """σ² under an assumed gamma model (planning before any data), vectorized."""
-    tail_probability(threshold, shape, scale)  # validates the parameters
+def model_sigma2(method, threshold, shape, scale, model=DEFAULT_MODEL):
+    """σ² under an assumed lifetime model (planning before any data), vectorized."""
+    lifetime = get_model(model)
+    lifetime.tail_probability(threshold, shape, scale)  # validates the parameters
     t = np.asarray(threshold, dtype=float) / np.asarray(scale, dtype=float)
-    return get_method(method).model_sigma2(np.asarray(shape, dtype=float), t)
+    return get_method(method).model_sigma2(np.asarray(shape, dtype=float), t, lifetime)
 
 
 def pass_fail_sigma2_from_p(p):

@@ -1,23 +1,28 @@
-"""Command line: ``tailstop demo`` and the headless tools (thin argument parsing only)."""
+"""Command line: ``tailstop demo`` and the headless tools (thin argument parsing only).
+
+Each verb is a module of this package with ``HELP`` (one line), ``add_arguments(parser)``, which
+returns ``run(args)``; ``VERBS`` lists them. The verbs never import this module back, and a verb
+is imported only to build its parser (so heavy imports belong inside ``run``).
+"""
 from __future__ import annotations
 
 import argparse
+import importlib
 import sys
 
-__all__ = ["main", "build_parser"]
+__all__ = ["VERBS", "main", "build_parser"]
 
-# Each subcommand module registers itself here: name -> (help, add_arguments, run).
-_COMMANDS = {}
+# verb -> module of this package
+VERBS = {
+    "annotate": "annotate",
+    "demo": "demo",
+    "plan": "plan",
+    "recalc": "recalc",
+}
 
 
-def command(name, help_text):
-    """Register a subcommand: decorate ``add_arguments(parser)``; it returns ``run(args)``."""
-
-    def register(add_arguments):
-        _COMMANDS[name] = (help_text, add_arguments)
-        return add_arguments
-
-    return register
+def _verb(name):
+    return importlib.import_module(f"{__name__}.{VERBS[name]}")
 
 
 def build_parser():
@@ -26,21 +31,14 @@ def build_parser():
         description="Exceedance probabilities of gamma lifetimes to a guaranteed relative accuracy.",
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name, (help_text, add_arguments) in _COMMANDS.items():
-        sub_parser = sub.add_parser(name, help=help_text, description=help_text)
-        sub_parser.set_defaults(run=add_arguments(sub_parser))
+    for name in VERBS:
+        verb = _verb(name)
+        sub_parser = sub.add_parser(name, help=verb.HELP, description=verb.HELP)
+        sub_parser.set_defaults(run=verb.add_arguments(sub_parser))
     return parser
 
 
-def _load_commands():
-    from . import annotate  # noqa: F401
-    from . import demo  # noqa: F401
-    from . import plan_command  # noqa: F401
-    from . import recalc_command  # noqa: F401
-
-
 def main(argv=None):
-    _load_commands()
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "run", None):
@@ -55,7 +53,3 @@ def main(argv=None):
         print(f"tailstop {args.command}: stopped by an unexpected {type(problem).__name__}: {problem}. "
               "Nothing was written; please report this with the file.", file=sys.stderr)
         return 1
-
-
-if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())

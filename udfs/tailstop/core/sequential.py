@@ -45,11 +45,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .fit import shape_from_log_ratio
 from .methods import METHOD_NAMES, SufficientStatistics
+from .models.gamma.fit import shape_from_log_ratio
+from .models.gamma.tail import log_density_term, tail_probability_standard
+from .models.gamma.variance import sigma2_fitted_shape, sigma2_known_shape
 from .rule import MIN_PILOT, boundary_factor, regularized_pass_fail_sigma2
-from .tail import log_density_term, tail_probability_standard
-from .variance import sigma2_fitted_shape, sigma2_known_shape
 
 __all__ = [
     "STATE_NAMES",

@@ -1,0 +1,202 @@
+"""Exact operating characteristics of the pass-fail rule: forward propagation of the (n, S) states."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import stats
+
+from .. import accuracy as _accuracy
+from .. import rule
+from ..methods import SufficientStatistics, estimate_from_statistics
+from .results import (
+    QUANTILE_LEVELS,
+    OperatingCharacteristics,
+    _check_plan,
+    _stop_confidence,
+    _stop_z,
+    default_n_max,
+)
+
+# Rows of the (n, S) grid evaluated by one call of rule.stops (pass-fail exact).
+_EXACT_BLOCK_ROWS = 64
+# Running probability below this ends an exact run that has no explicit n_max.
+_EXACT_TOLERANCE = 1e-12
+
+
+# --------------------------------------------------------------------------- exact pass-fail
+
+
+def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1, stop_z=None,
+                    progress=None) -> OperatingCharacteristics:
+    """Exact operating characteristics of the pass-fail rule by forward propagation of (n, S).
+
+    Parameters
+    ----------
+    p : float
+        True probability that a unit is beyond the threshold, 0 < p < 1.
+    accuracy, confidence, pilot : float, float, int
+        The plan: odds within a factor ``accuracy`` at ``confidence``, pilot >= 2.
+    n_max : int, optional
+        Propagate exactly up to n_max. By default the propagation runs until
+        the still-running probability is below 1e-12, up to 20 n* + 1000 units
+        (runs with fewer than about B = (z/log d)² units beyond the threshold
+        cannot stop, so the tail of N can be long when B is large and p small).
+    check_every : int
+        The rule is consulted at n = pilot, pilot + k, ... (``rule.is_check_point``).
+    stop_z : float, optional
+        Critical value for the stopping boundary instead of z(confidence).
+    progress : callable, optional
+        Called with the fraction done (0..1).
+
+    Notes
+    -----
+    With q = 1 - p, after the pilot S ~ Binomial(pilot, p). At each n the mass
+    of the states (n, k) where ``rule.stops`` says STOP is P(N = n, S = k);
+    it is removed, the rest moves on as P(n+1, k) = P(n, k) q + P(n, k-1) p.
+    The stop set is evaluated by ``rule.stops`` on blocks of the (n, S) grid,
+    only over the S where the running probability is not exactly zero.
+    """
+    _check_plan(accuracy, confidence, pilot, check_every)
+    if not 0 < p < 1:
+        raise ValueError(f"the probability must be strictly between 0 and 1 (got {p!r})")
+    pilot = int(pilot)
+    n_star = float(_accuracy.units_for_accuracy(1.0 / (p * (1.0 - p)), accuracy, confidence))
+    adaptive = n_max is None
+    cap = max(default_n_max(n_star, pilot), 20 * math.ceil(n_star) + 1000) if adaptive else int(n_max)
+    if cap < pilot:
+        raise ValueError(f"n_max must be at least the pilot ({pilot}, got {cap})")
+    stop_confidence = _stop_confidence(confidence, stop_z)
+    propagation = _Propagation(p, pilot, cap)
+    stop_set = _PassFailStopSet(accuracy, stop_confidence, pilot, check_every)
+    n = pilot
+    while True:
+        if (n - pilot) % _EXACT_BLOCK_ROWS == 0:
+            low, high = propagation.window()
+            stop_set.evaluate(n, min(n + _EXACT_BLOCK_ROWS, cap + 1), low, high)
+            if progress is not None:
+                progress(min(1.0, (n - pilot) / max(1, cap - pilot)))
+        propagation.stop(n, stop_set.row(n, *propagation.window()))
+        if n == cap or (adaptive and propagation.running_mass() <= _EXACT_TOLERANCE) or propagation.running_mass() == 0:
+            break
+        propagation.advance()
+        n += 1
+    if progress is not None:
+        progress(1.0)
+    stopped_n, stopped_k, stopped_mass = propagation.stopped_states()
+    covered = _pass_fail_covers(stopped_n, stopped_k, p, accuracy)
+    return _exact_result(
+        probability=p, n_star=n_star, pilot=pilot, n_max=n, confidence=confidence,
+        stop_z=_stop_z(confidence, stop_z), distribution=propagation.distribution[: n + 1],
+        beyond=propagation.running_mass(), coverage=float(np.sum(stopped_mass[covered])),
+    )
+
+
+class _Propagation:
+    """P(n, k) of the still-running states, kept on the window of k where it is not 0."""
+
+    def __init__(self, p, pilot, cap):
+        self.p, self.q = p, 1.0 - p
+        self.n = pilot
+        self.mass = np.zeros(cap + 2)
+        self.mass[: pilot + 1] = stats.binom.pmf(np.arange(pilot + 1), pilot, p)
+        self.low, self.high = 0, pilot
+        self.distribution = np.zeros(cap + 1)
+        self._stopped = []
+
+    def window(self):
+        """[low, high] of k with non-zero running probability (trimmed lazily)."""
+        nonzero = np.flatnonzero(self.mass[self.low: self.high + 1])
+        if nonzero.size:
+            self.low, self.high = self.low + int(nonzero[0]), self.low + int(nonzero[-1])
+        return self.low, self.high
+
+    def stop(self, n, stops_row):
+        """Remove the states (n, k) where the rule stops; ``stops_row`` covers k = low..high."""
+        current = self.mass[self.low: self.high + 1]
+        stopping = stops_row & (current > 0)
+        if stopping.any():
+            k = self.low + np.flatnonzero(stopping)
+            taken = current[stopping]
+            self.distribution[n] = taken.sum()
+            self._stopped.append((np.full(k.size, n), k, taken.copy()))
+            current[stopping] = 0.0
+
+    def advance(self):
+        """One more unit: P(n+1, k) = P(n, k) q + P(n, k-1) p."""
+        current = self.mass[self.low: self.high + 1]
+        moved = current * self.p
+        current *= self.q
+        self.mass[self.high + 1] = 0.0
+        self.mass[self.low + 1: self.high + 2] += moved
+        self.high += 1
+        self.n += 1
+
+    def running_mass(self):
+        return float(self.mass[self.low: self.high + 1].sum())
+
+    def stopped_states(self):
+        if not self._stopped:
+            return np.zeros(0, int), np.zeros(0, int), np.zeros(0)
+        return tuple(np.concatenate(parts) for parts in zip(*self._stopped))
+
+
+class _PassFailStopSet:
+    """``rule.stops`` on a block of the (n, S) grid, served row by row."""
+
+    def __init__(self, accuracy, stop_confidence, pilot, check_every):
+        self.arguments = (1.0, accuracy, stop_confidence, pilot, "pass-fail")
+        self.check_every = check_every
+        self.first_n = self.first_k = 0
+        self.grid = np.zeros((0, 0), bool)
+
+    def evaluate(self, first_n, end_n, low, high):
+        """Stop set for n in [first_n, end_n) and k in [low, high + rows]."""
+        n = np.arange(first_n, end_n)[:, None]
+        k = np.arange(low, high + (end_n - first_n) + 1)[None, :]
+        n_grid, k_grid = np.broadcast_arrays(n, k)
+        statistics = SufficientStatistics(n=n_grid, sum_x=np.zeros(n_grid.shape), log_ratio=np.zeros(n_grid.shape),
+                                          exceedances=k_grid)
+        self.grid = rule.stops(statistics, *self.arguments, check_every=self.check_every) & (k_grid <= n_grid)
+        self.first_n, self.first_k = first_n, low
+
+    def row(self, n, low, high):
+        return self.grid[n - self.first_n, low - self.first_k: high - self.first_k + 1]
+
+
+def _pass_fail_covers(n, k, p, accuracy):
+    """Does the final pass-fail interval at (n, k) contain p? (methods + accuracy, as the formulas compute it)."""
+    if n.size == 0:
+        return np.zeros(0, bool)
+    statistics = SufficientStatistics(n=n, sum_x=np.zeros(n.shape), log_ratio=np.zeros(n.shape), exceedances=k)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_odds = estimate_from_statistics(statistics, 1.0, "pass-fail").log_odds
+    interval = _accuracy.probability_interval(log_odds, accuracy)
+    return (interval.low <= p) & (p <= interval.high)
+
+
+def _distribution_figures(distribution):
+    """Mean, sd (of N given N <= n_max) and quantiles from P(N = n)."""
+    n = np.arange(distribution.size)
+    stopped = distribution.sum()
+    if stopped <= 0:
+        return math.nan, math.nan, {level: math.inf for level in QUANTILE_LEVELS}
+    mean = float(np.dot(n, distribution) / stopped)
+    variance = float(np.dot((n - mean) ** 2, distribution) / stopped)
+    cdf = np.cumsum(distribution)
+    quantiles = {}
+    for level in QUANTILE_LEVELS:
+        # a relative slack of 1e-12 keeps rounding in the cumulative sum from moving a quantile
+        index = int(np.searchsorted(cdf, level * (1.0 - 1e-12)))
+        quantiles[level] = float(index) if index < distribution.size else math.inf
+    return mean, math.sqrt(max(variance, 0.0)), quantiles
+
+
+def _exact_result(*, probability, n_star, pilot, n_max, confidence, stop_z, distribution, beyond, coverage):
+    mean, sd, quantiles = _distribution_figures(distribution)
+    return OperatingCharacteristics(
+        method="pass-fail", exact=True, probability=float(probability), n_star=n_star, pilot=pilot, n_max=int(n_max),
+        confidence=float(confidence), stop_z=stop_z, expected_units=mean, sd_units=sd, quantiles=quantiles,
+        beyond=float(beyond), coverage=float(coverage), quantiles_se={level: 0.0 for level in QUANTILE_LEVELS},
+        distribution=distribution,
+    )
