@@ -1,11 +1,15 @@
 """The three ways of estimating p = P(X > threshold) from a test log (METHOD.md §3).
 
-* ``known-shape`` — the gamma shape a is given; the scale is estimated by ML
-  (ŝ = mean / a) and p̂ = Q(a, c/ŝ).
+* ``known-shape`` — the shape of the lifetime model is given; the scale is
+  estimated by ML (gamma: ŝ = mean / a, p̂ = Q(a, c/ŝ); Weibull:
+  η̂ = (mean x^β)^{1/β}; lognormal: the median e^{mean log x}).
 * ``pass-fail`` — p̂ is the share of units beyond the threshold. Needs no
   lifetime model; a unit taken off test at or beyond the threshold without
   failing (a survivor) counts as beyond it.
-* ``fitted-shape`` — shape and scale both by gamma ML; p̂ = Q(â, c/ŝ).
+* ``fitted-shape`` — shape and scale both by ML of the model (location 0).
+
+The model (``core.models.MODELS``: gamma, the default, Weibull, lognormal)
+is an argument of every function here; pass-fail ignores it.
 
 Every method works from the sufficient statistics only, vectorized, so the
 same code gives the estimate for one sample or for every prefix of a log
@@ -49,16 +53,25 @@ class SufficientStatistics:
         log(mean x) - mean(log x), the statistic of the gamma shape.
     exceedances : ndarray
         Number of units with x > threshold, survivors included.
+    model_statistics : object or None
+        What a model's estimators need beyond these (``LifetimeModel.statistics``; the Weibull
+        and lognormal fits), None for the gamma model and for pass-fail.
     """
 
     n: np.ndarray
     sum_x: np.ndarray
     log_ratio: np.ndarray
     exceedances: np.ndarray
+    model_statistics: object = None
 
     @classmethod
-    def of(cls, observations, threshold, survivors=None) -> "SufficientStatistics":
-        """Statistics of one sample; ``survivors`` flags units stopped without failing."""
+    def of(cls, observations, threshold, survivors=None, *, model=DEFAULT_MODEL, method=None,
+           shape=None) -> "SufficientStatistics":
+        """Statistics of one sample; ``survivors`` flags units stopped without failing.
+
+        ``model``, ``method`` and ``shape`` say which model statistics to add (see
+        ``model_statistics``); the gamma model needs none.
+        """
         x = np.asarray(observations, dtype=float).ravel()
         n = x.size
         mean = x.mean() if n else np.nan
@@ -72,10 +85,12 @@ class SufficientStatistics:
             sum_x=np.asarray(x.sum()),
             log_ratio=np.asarray(log_ratio),
             exceedances=np.asarray(_exceeds(x, threshold, survivors).sum()),
+            model_statistics=_model_statistics(x, model, method, shape, running=False),
         )
 
     @classmethod
-    def running(cls, observations, threshold, survivors=None) -> "SufficientStatistics":
+    def running(cls, observations, threshold, survivors=None, *, model=DEFAULT_MODEL, method=None,
+                shape=None) -> "SufficientStatistics":
         """Statistics of every prefix x[..., :1], x[..., :2], …, from running sums (O(n)).
 
         ``observations`` may be 1-D (one log) or 2-D (one log per row, e.g.
@@ -96,7 +111,17 @@ class SufficientStatistics:
             sum_x=np.cumsum(x, axis=-1),
             log_ratio=np.maximum(log_ratio, 0.0),
             exceedances=np.cumsum(_exceeds(x, threshold, survivors), axis=-1),
+            model_statistics=_model_statistics(x, model, method, shape, running=True),
         )
+
+
+def _model_statistics(x, model, method, shape, running):
+    """The model's own statistics for a parametric method (None for gamma, pass-fail, an empty log)."""
+    lifetime = get_model(model)
+    if lifetime.statistics is None or method not in ("known-shape", "fitted-shape") or x.size == 0:
+        return None
+    with np.errstate(all="ignore"):
+        return lifetime.statistics(x, method, shape, running=running)
 
 
 def _exceeds(x, threshold, survivors):
@@ -120,7 +145,7 @@ class TailEstimate:
     sigma2 : ndarray
         Plug-in σ̂² = n·Var(log q̂) (METHOD.md §3).
     shape, scale : ndarray or None
-        The gamma parameters used (None for pass-fail).
+        The model parameters used (None for pass-fail).
     """
 
     method: str
@@ -203,7 +228,7 @@ class _FittedShape:
         fitted = model.fitted_shape(statistics)
         valid = np.isfinite(fitted)
         safe_shape = np.where(valid, fitted, 1.0)
-        scale = model.scale_for_shape(statistics, safe_shape)
+        scale = model.fitted_scale(statistics, safe_shape)
         t = threshold / scale
         tail = model.tail_standard(safe_shape, t)
         nan = np.where(valid, 0.0, np.nan)
@@ -247,7 +272,7 @@ def estimate_tail(observations, threshold, method="pass-fail", shape=None, survi
         The threshold c > 0, in the unit of the lifetimes.
     method : {'pass-fail', 'known-shape', 'fitted-shape'}
     shape : float, optional
-        The gamma shape; required by ``known-shape`` only.
+        The model's shape; required by ``known-shape`` only.
     survivors : array_like of bool, optional
         Units taken off test at or beyond the threshold without failing
         (``pass-fail`` only): they count as beyond the threshold.
@@ -262,15 +287,17 @@ def estimate_tail(observations, threshold, method="pass-fail", shape=None, survi
     """
     estimator, lifetime = get_method(method), get_model(model)
     x = np.asarray(observations, dtype=float).ravel()
-    _check_sample(x, threshold, estimator, shape, survivors)
-    statistics = SufficientStatistics.of(x, threshold, survivors)
-    if estimator.name == "fitted-shape" and not statistics.log_ratio > 1e-13:
-        raise ValueError("all lifetimes are equal (or nearly): the gamma shape cannot be estimated")
+    _check_sample(x, threshold, estimator, shape, survivors, lifetime)
+    statistics = SufficientStatistics.of(x, threshold, survivors, model=lifetime.name, method=estimator.name,
+                                         shape=shape)
+    if estimator.name == "fitted-shape" and not (statistics.log_ratio > 1e-13
+                                                 and np.isfinite(lifetime.fitted_shape(statistics))):
+        raise ValueError(f"all lifetimes are equal (or nearly): the {lifetime.title} shape cannot be estimated")
     result = estimator.estimate(statistics, threshold, shape, lifetime)
     return _as_scalars(result)
 
 
-def _check_sample(x, threshold, model, shape, survivors):
+def _check_sample(x, threshold, model, shape, survivors, lifetime):
     if not (np.isfinite(threshold) and threshold > 0):
         raise ValueError(f"threshold must be a positive number (got {threshold!r})")
     if not np.all(np.isfinite(x) & (x > 0)):
@@ -278,7 +305,7 @@ def _check_sample(x, threshold, model, shape, survivors):
     if x.size < 2:
         raise ValueError(f"at least 2 units are needed (got {x.size})")
     if model.needs_shape and (shape is None or not (np.isfinite(shape) and shape > 0)):
-        raise ValueError("known-shape needs the gamma shape, a positive number")
+        raise ValueError(f"known-shape needs the {lifetime.title} shape, a positive number")
     if survivors is not None and model.uses_lifetimes and np.any(survivors):
         raise ValueError(f"survivors (units stopped without failing) can only be used with pass-fail, not {model.name}")
 

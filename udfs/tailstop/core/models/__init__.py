@@ -5,13 +5,15 @@ names. Each model provides what ``base.LifetimeModel`` lists.
 """
 from __future__ import annotations
 
-from . import gamma
+from . import gamma, lognormal, weibull
 from .base import LifetimeModel
 
 __all__ = ["DEFAULT_MODEL", "MODELS", "MODEL_NAMES", "LifetimeModel", "get_model"]
 
 MODELS = {
     "gamma": gamma.MODEL,
+    "weibull": weibull.MODEL,
+    "lognormal": lognormal.MODEL,
 }
 MODEL_NAMES = tuple(MODELS)
 DEFAULT_MODEL = "gamma"

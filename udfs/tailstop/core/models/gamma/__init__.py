@@ -7,6 +7,8 @@ log-odds for the known-shape and fitted-shape estimators, METHOD.md §3).
 """
 from __future__ import annotations
 
+import numpy as np
+
 from ..base import LifetimeModel
 from .fit import fit_gamma, gamma_fit_pvalue, shape_from_log_ratio
 from .tail import log_density_term, tail_probability, tail_probability_standard
@@ -29,6 +31,17 @@ def _draw(rng, shape, scale, size):
     return rng.gamma(shape, scale, size=size)
 
 
+def _log_pdf(x, shape, scale):
+    """log f(x) = (a-1) log x - x/s - a log s - log Γ(a), unchecked."""
+    x = np.asarray(x, dtype=float)
+    return log_density_term(shape, x / np.asarray(scale, dtype=float)) - np.log(x)
+
+
+def _log_sf(x, shape, scale):
+    """log P(X > x), far-tail accurate, unchecked."""
+    return tail_probability_standard(shape, np.asarray(x, dtype=float) / np.asarray(scale, dtype=float)).log_p
+
+
 MODEL = LifetimeModel(
     name="gamma",
     tail_probability=tail_probability,
@@ -41,5 +54,11 @@ MODEL = LifetimeModel(
     fit=fit_gamma,
     fit_pvalue=gamma_fit_pvalue,
     draw=_draw,
+    title="gamma",
+    shape_text="gamma shape a > 0 (scipy.stats.gamma a)",
+    scale_text="gamma scale s > 0, unit of the lifetimes (mean = shape × scale)",
+    fitted_scale=_scale_for_shape,
+    log_pdf=_log_pdf,
+    log_sf=_log_sf,
 )
 
