@@ -28,6 +28,7 @@ from openpyxl.utils.cell import range_boundaries
 from openpyxl.worksheet.formula import ArrayFormula
 
 from .cached_values import EXCEL_ERRORS, CellError, remember, save_with_cached_values
+from .cell_check import rounds_on_save
 from .package import Limits, WorkbookRefused
 from .safe_io import open_workbook_safely
 
@@ -101,7 +102,8 @@ def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=Fals
     _refuse_large_sheets(Path(book_path), book, max_area)
     computed = evaluate_workbook(book_path)
     cached = _cached_values(book, computed)
-    saved = save_with_cached_values(book, out_path, cached, in_place=in_place, backup=backup)
+    exact = {**_numbers_openpyxl_would_round(book), **cached}
+    saved = save_with_cached_values(book, out_path, exact, in_place=in_place, backup=backup)
     errors = [(title, cell, value) for (title, cell), value in cached.items() if _is_error(value)]
     return RecalcResult(saved.path, saved.backup, cached, errors)
 
@@ -180,6 +182,15 @@ def _cached_values(book, computed):
             for member in _block(cell):
                 remember(member, computed.get((sheet.title.upper(), member.coordinate)), cached)
     return cached
+
+
+def _numbers_openpyxl_would_round(book):
+    """(sheet title, coordinate) -> value of the numbers openpyxl's writer would round (17 digits, > 2**53).
+
+    ``save_with_cached_values`` writes them exactly, as annotate does (``cell_check.rounds_on_save``).
+    """
+    return {(sheet.title, cell.coordinate): cell._value for sheet in book.worksheets
+            for cell in list(sheet._cells.values()) if cell.data_type == "n" and rounds_on_save(cell._value)}
 
 
 def _formula_cells(sheet):
