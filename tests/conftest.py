@@ -5,6 +5,8 @@ import numpy as np
 import openpyxl
 import pytest
 
+from libreoffice import require_libreoffice
+
 
 def range_values(path, sheet, cell_range):
     """Read a range the way a spreadsheet hands it to a formula: a 2-D list, None for blanks."""
@@ -34,3 +36,13 @@ def fixture_log(tmp_path):
     values[30] = None  # a unit whose result was never entered
     path = write_log(tmp_path / "log.xlsx", values)
     return path, values
+
+
+@pytest.fixture(scope="session")
+def soffice():
+    """The LibreOffice program for the tests that open books in it.
+
+    Skips, saying why, when LibreOffice is missing or its probe conversion fails;
+    with CI=true that is a failure with the same message (tests/libreoffice.py).
+    """
+    return require_libreoffice()

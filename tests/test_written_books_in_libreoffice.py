@@ -14,29 +14,12 @@ import openpyxl
 import pytest
 from openpyxl.utils.cell import get_column_letter
 
-from libreoffice import LibreOfficeFailed, convert_with_libreoffice, find_soffice
+from libreoffice import convert_with_libreoffice
 from tailstop.workbooks.annotate import annotate
 from tailstop.workbooks.cached_values import EXCEL_ERRORS
 from tailstop.workbooks.demo_books import LOG_BOOK, PLAN_BOOK, build_demo
 from test_annotate import LOG_SHEET, bench_lifetimes, plan, rich_log
 from test_annotate_stream import excel_like_book
-
-
-@pytest.fixture(scope="module")
-def soffice(tmp_path_factory):
-    """Skip (saying why) only when LibreOffice is not installed or cannot run at all."""
-    if find_soffice() is None:
-        pytest.skip("LibreOffice is not installed (no soffice on PATH); install libreoffice-calc-nogui "
-                    "(Debian) to open the written books in a real spreadsheet program")
-    folder = tmp_path_factory.mktemp("lo-probe")
-    book = openpyxl.Workbook()
-    book.active["A1"] = 1
-    book.save(folder / "probe.xlsx")
-    try:
-        convert_with_libreoffice(folder / "probe.xlsx", folder / "out")
-    except LibreOfficeFailed as problem:
-        pytest.skip(f"soffice is installed but cannot convert even a one-cell book here: {problem}")
-    return find_soffice()
 
 
 def shown_by_libreoffice(path, folder):
