@@ -16,6 +16,7 @@ __all__ = ["VERBS", "main", "build_parser"]
 VERBS = {
     "annotate": "annotate",
     "demo": "demo",
+    "extension": "extension",
     "plan": "plan",
     "recalc": "recalc",
 }
