@@ -20,6 +20,12 @@ def add_arguments(parser):
     parser.add_argument("--no-backup", action="store_true", help="with --in-place: keep no backup copy")
     parser.add_argument("--allow-lossy", action="store_true",
                         help="go on even if content the file holds would be lost on saving (it says what)")
+    parser.add_argument("--for", dest="spelling", choices=("excel", "libreoffice"),
+                        help="write the tailstop formulas as this program stores them: TAIL_PROB (Excel) or "
+                             "TAILSTOP.TAIL_PROB (LibreOffice); default: each as written")
+    parser.add_argument("--engine", choices=("formulas", "libreoffice"), default="formulas",
+                        help="what computes the book: the built-in formula engine (default) or LibreOffice "
+                             "with the tailstop extension, in a throwaway profile")
     return run
 
 
@@ -30,9 +36,12 @@ def run(args):
     if args.no_backup and not args.in_place:
         raise ValueError("--no-backup goes with --in-place")
     target = args.book if args.in_place else (args.out or default_output(args.book))
+    evaluate = None
+    if args.engine == "libreoffice":
+        from ..extension.engine import evaluate_with_libreoffice as evaluate
     try:
         result = recalc(args.book, target, in_place=args.in_place, backup=not args.no_backup,
-                        allow_lossy=args.allow_lossy)
+                        allow_lossy=args.allow_lossy, evaluate=evaluate, spelling=args.spelling)
     except WorkbookRefused as refusal:
         print(f"tailstop recalc: {refusal}", file=sys.stderr)
         return 1

@@ -31,10 +31,12 @@ from .cached_values import EXCEL_ERRORS, CellError, remember, save_with_cached_v
 from .cell_check import rounds_on_save
 from .package import Limits, WorkbookRefused
 from .safe_io import open_workbook_safely
+from .spelling import respell_book
 
 __all__ = ["RecalcResult", "recalc", "evaluate_workbook", "register_formulas"]
 
-UDF_PREFIXES = ("", "_XLUDF.")
+# as Excel may store a user-defined name, and as LibreOffice stores an add-in function (workbooks/spelling.py)
+UDF_PREFIXES = ("", "_XLUDF.", "TAILSTOP.")
 # the engine compiles every position of a sheet's used rectangle, empty or not (about 30 µs each)
 MAX_ENGINE_AREA = 2_000_000
 _EXTERNAL_LINK = "application/vnd.openxmlformats-officedocument.spreadsheetml.externalLink+xml"
@@ -65,7 +67,7 @@ class RecalcResult:
 
 
 def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=False, limits=Limits(),
-           max_area=MAX_ENGINE_AREA):
+           max_area=MAX_ENGINE_AREA, evaluate=None, spelling=None):
     """Evaluate every formula of a workbook and write a copy that stores the results.
 
     Parameters
@@ -85,6 +87,13 @@ def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=Fals
     max_area : int
         Largest used rectangle (rows × columns) of a sheet; the engine visits
         every position of it.
+    evaluate : callable, optional
+        ``evaluate(book_path)`` -> values as ``evaluate_workbook`` returns them
+        (the default); ``tailstop.extension.engine.evaluate_with_libreoffice``
+        lets LibreOffice compute instead.
+    spelling : {None, 'excel', 'libreoffice'}
+        Rewrite the tailstop calls for this program (``workbooks/spelling.py``);
+        None keeps each formula as written.
 
     Returns
     -------
@@ -100,8 +109,10 @@ def recalc(book_path, out_path, *, in_place=False, backup=True, allow_lossy=Fals
     book = open_workbook_safely(book_path, allow_lossy=allow_lossy, limits=limits)
     _refuse_external_links(Path(book_path), book.tailstop_report)
     _refuse_large_sheets(Path(book_path), book, max_area)
-    computed = evaluate_workbook(book_path)
+    computed = (evaluate or evaluate_workbook)(book_path)
     cached = _cached_values(book, computed)
+    if spelling is not None:
+        respell_book(book, spelling)
     exact = {**_numbers_openpyxl_would_round(book), **cached}
     saved = save_with_cached_values(book, out_path, exact, in_place=in_place, backup=backup)
     errors = [(title, cell, value) for (title, cell), value in cached.items() if _is_error(value)]
