@@ -6,14 +6,13 @@ lets LibreOffice compute it; every cell must equal the same formula called in
 Python. A second LibreOffice run reads what the Function Wizard lists and
 saves a book as .xlsx, to pin down the spelling Calc stores. Outside CI the
 tests skip when LibreOffice or its Python ``uno`` module is missing; in CI
-(``CI`` set) they fail instead, as .ci/run installs both.
+(``CI=true``) they fail instead, as .ci/run installs both.
 """
 from __future__ import annotations
 
 import inspect
 import json
 import math
-import os
 import subprocess
 import zipfile
 from pathlib import Path
@@ -23,6 +22,7 @@ import pytest
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.formula import ArrayFormula
 
+from libreoffice import in_ci
 from tailstop.commands import main
 from tailstop.extension.build import build_extension
 from tailstop.extension.libreoffice import LibreOfficeError, Sandbox, find_program, office_environment
@@ -90,8 +90,8 @@ def office():
     python = libreoffice_python()
     if programs is None or python is None:
         reason = reason if programs is None else "no Python with LibreOffice's uno module (install python3-uno)"
-        if os.environ.get("CI"):
-            pytest.fail(f"CI must run the live LibreOffice tests: {reason}")
+        if in_ci():
+            pytest.fail(f"CI=true and LibreOffice cannot run the live formula tests: {reason}", pytrace=False)
         pytest.skip(reason)
     return {**programs, "python": python}
 

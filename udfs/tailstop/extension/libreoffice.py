@@ -20,6 +20,7 @@ from pathlib import Path
 __all__ = ["find_program", "office_environment", "run_bounded", "LibreOfficeError", "Sandbox", "sandbox", "user_install", "is_root"]
 
 RUN_TIMEOUT = 300  # seconds for one soffice or unopkg run
+SOFFICE_VARIABLE = "TAILSTOP_SOFFICE"
 
 # Load every .xlsx and .ods recalculated (0 = always), whatever values it holds.
 _ALWAYS_RECALCULATE = """<?xml version="1.0" encoding="UTF-8"?>
@@ -47,7 +48,18 @@ def is_root() -> bool:
 
 
 def find_program(name: str) -> str:
-    """The path of ``soffice`` or ``unopkg``; LibreOfficeError if it is not installed."""
+    """The path of ``soffice`` or ``unopkg``; LibreOfficeError if it is not installed.
+
+    ``TAILSTOP_SOFFICE``, when set, names the soffice to use (and nothing else
+    is looked at); unopkg is then the one in the same folder.
+    """
+    chosen = os.environ.get(SOFFICE_VARIABLE)
+    if chosen is not None:
+        soffice = shutil.which(chosen)
+        found = soffice if name == "soffice" else shutil.which(name, path=str(Path(soffice or "").resolve().parent))
+        if found:
+            return found
+        raise LibreOfficeError(f"{SOFFICE_VARIABLE}={chosen!r} names no LibreOffice with {name}")
     found = shutil.which(name)
     if found:
         return found
