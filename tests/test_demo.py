@@ -65,6 +65,7 @@ def assert_same_content(expected, actual):
 
 @pytest.mark.parametrize("name", [LOG_BOOK, PLAN_BOOK])
 def test_committed_books_match_what_the_command_builds(built, name):
+    """Regression guard only: the committed books against the command; what they show is checked below by hand."""
     folder, _ = built
     committed = COMMITTED / name
     assert committed.is_file(), f"{committed} is missing: run `tailstop demo` at the top of the repository"
@@ -72,6 +73,7 @@ def test_committed_books_match_what_the_command_builds(built, name):
 
 
 def test_the_books_are_reproducible_byte_for_byte(built):
+    """Regression guard: the same build gives the same bytes (a property, no check value)."""
     folder, _ = built
     book, cached, _, _ = log_book()
     assert deterministic_bytes(book, cached) == (folder / LOG_BOOK).read_bytes()

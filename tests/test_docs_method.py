@@ -23,6 +23,8 @@ def page(name):
 
 
 def test_method_comparison_table_matches_units_required():
+    """The page's table against the formula (regression guard); the σ² behind it against mpmath in
+    tests/test_plugin_variance.py::test_planning_sigma2_and_unit_counts_against_mpmath."""
     text = page("method.md")
     call = re.search(r"`UNITS_REQUIRED\((\d+), (\d+), (\d+), ([\d.]+), ([\d.]+), method\)`", text)
     threshold, shape, scale, accuracy, confidence = (float(v) for v in call.groups())

@@ -74,6 +74,7 @@ def pass_fail_stop(lifetimes):
 
 
 def test_committed_page_is_what_the_code_writes(text, generated):
+    """Regression guard only: the page against the code that writes it (the figures' independent checks follow)."""
     assert text == generated, ("docs/worked-example.md is out of date: "
                                "python docs/tools/worked_example.py > docs/worked-example.md")
 

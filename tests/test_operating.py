@@ -69,7 +69,11 @@ def test_tiny_case_worked_on_paper():
 
 
 def straightforward_propagation(p, accuracy, confidence, pilot, n_max, check_every=1):
-    """P(N = n) and coverage on the full (n, S) grid, one rule.stops call per n, no windows."""
+    """P(N = n) and coverage on the full (n, S) grid, one rule.stops call per n, no windows.
+
+    It asks ``rule.stops`` itself, so it checks the propagation's shortcuts, not the rule; the rule
+    coded from METHOD.md in the test: tests/test_planning_independent.py.
+    """
     running = stats.binom.pmf(np.arange(pilot + 1), pilot, p)
     distribution = np.zeros(n_max + 1)
     coverage = 0.0

@@ -20,6 +20,8 @@ def table_rows(text):
 
 
 def test_prints_the_three_methods_side_by_side(capsys):
+    """The printed table is the core's (a regression guard on the printing); the figures themselves
+    against hand computations: tests/test_planning_independent.py::test_the_printed_plan_table_against_hand_computations."""
     assert main(PLAN) == 0
     out = capsys.readouterr().out
     header = next(line for line in out.splitlines() if "pass-fail" in line and "known-shape" in line)

@@ -28,7 +28,7 @@ def boundary(accuracy, confidence):
     return (stats.norm.isf((1 - confidence) / 2) / math.log(accuracy)) ** 2
 
 
-def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max):
+def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every=1):
     """P(N = n) for n <= n_max, P(N > n_max) and the coverage, by propagating P(n, S) unit by unit."""
     factor = boundary(accuracy, confidence)
     target = math.log(p / (1 - p))
@@ -37,7 +37,7 @@ def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max):
     coverage = 0.0
     for n in range(1, n_max + 1):
         running = np.concatenate([running * (1 - p), [0.0]]) + np.concatenate([[0.0], running * p])
-        if n < pilot:
+        if n < pilot or (n - pilot) % check_every:
             continue
         k = np.arange(n + 1)
         p_tilde = (k + 0.5) / (n + 1)
@@ -51,12 +51,14 @@ def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max):
     return distribution, running.sum(), coverage
 
 
-@pytest.mark.parametrize("p, accuracy, confidence, pilot", [(0.3, 1.6, 0.95, 10), (0.08, 2.0, 0.9, 5),
-                                                             (0.5, 3.0, 0.9, 2)])
-def test_exact_pass_fail_plan_against_the_propagation_written_here(p, accuracy, confidence, pilot):
+@pytest.mark.parametrize("p, accuracy, confidence, pilot, check_every", [
+    (0.3, 1.6, 0.95, 10, 1), (0.08, 2.0, 0.9, 5, 1), (0.5, 3.0, 0.9, 2, 1),
+    (0.3, 1.5, 0.95, 7, 3),  # a rig that tests three units at a time
+])
+def test_exact_pass_fail_plan_against_the_propagation_written_here(p, accuracy, confidence, pilot, check_every):
     n_max = 600
-    distribution, beyond, coverage = pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max)
-    result = operating.pass_fail_exact(p, accuracy, confidence, pilot, n_max=n_max)
+    distribution, beyond, coverage = pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every)
+    result = operating.pass_fail_exact(p, accuracy, confidence, pilot, n_max=n_max, check_every=check_every)
     # check value: the propagation above (METHOD.md §5–6 coded independently of the package)
     assert result.distribution[: n_max + 1] == pytest.approx(distribution, abs=1e-13)
     assert result.beyond == pytest.approx(beyond, abs=1e-12)
@@ -64,6 +66,8 @@ def test_exact_pass_fail_plan_against_the_propagation_written_here(p, accuracy, 
     n = np.arange(n_max + 1)
     mean = float(np.dot(n, distribution) / distribution.sum())
     assert result.expected_units == pytest.approx(mean, rel=1e-10)
+    if check_every > 1:
+        return
     table = dict(PLAN_SUMMARY_FROM_P(p, accuracy, confidence, pilot))
     assert table["expected units E[N]"] == pytest.approx(mean, rel=1e-9)
     assert table["coverage"] == pytest.approx(coverage, abs=1e-9)
@@ -138,3 +142,27 @@ def test_the_random_stream_is_never_restarted(method, replications):
     assert matches.size == 0, f"the runs from {matches[0] + 1} on repeat the first runs"
     # and the runs are not all alike
     assert np.unique(units).size > 5
+
+
+def test_the_printed_plan_table_against_hand_computations(capsys):
+    import mpmath
+
+    from tailstop.commands import main
+    from test_plugin_variance import mp_fitted_sigma2
+
+    threshold, shape, scale, accuracy, confidence, pilot = 1000.0, 2.0, 600.0, 1.6, 0.95, 8
+    assert main(["plan", "--threshold", "1000", "--shape", "2", "--scale", "600", "--accuracy", "1.6",
+                 "--confidence", "0.95", "--pilot", "8", "--replications", "100", "--fitted-replications", "20"]) == 0
+    rows = {line[:24].strip(): line[24:].split() for line in capsys.readouterr().out.splitlines() if line.strip()}
+    # check value: the Erlang closed form Q(2, t) = e^{-t}(1 + t) (JKB vol. 1), and METHOD.md §3–4 by hand
+    t = threshold / scale
+    p = math.exp(-t) * (1 + t)
+    f = t * t * math.exp(-t)
+    sigma2 = {"pass-fail": 1 / (p * (1 - p)), "known-shape": f * f / (shape * p * p * (1 - p) ** 2),
+              "fitted-shape": float(mp_fitted_sigma2(mpmath.mpf(shape), mpmath.mpf(t)))}
+    n_star = [f"{math.ceil(boundary(accuracy, confidence) * value):,}" for value in sigma2.values()]
+    assert rows["fixed-size units n*"] == n_star
+    distribution, _, coverage = pass_fail_plan_by_hand(p, accuracy, confidence, pilot, 2000)
+    mean = float(np.dot(np.arange(distribution.size), distribution) / distribution.sum())
+    assert rows["expected units E[N]"][0] == f"{mean:.4g}"
+    assert rows["coverage"][0] == f"{coverage:.4g}"

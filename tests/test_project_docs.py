@@ -55,6 +55,7 @@ def quick_look():
 
 
 def test_readme_quick_look_is_what_the_demo_computes():
+    """Regression guard only: the README block against the formulas (their figures are checked in tests/test_demo.py)."""
     readme = (ROOT / "README.md").read_text()
     block = readme.split("<!-- quick-look -->\n", 1)[1].split("\n<!-- /quick-look -->", 1)[0]
     assert block == quick_look()
