@@ -205,35 +205,45 @@ def test_survivor_mark_equals_a_pass_and_a_failure_time_beyond_the_threshold():
     assert column(marked, 1000.0, 3.0, 0.95, 4) == column(as_times, 1000.0, 3.0, 0.95, 4)
 
 
-# ----------------------------------------------------------------- survivors refused
+# ----------------------------------------------------------------- suspended units
 
 
-def test_survivor_in_a_gamma_method_is_refused_from_its_row():
+def test_a_suspension_in_a_gamma_method_is_read_as_censored():
     rows = [[v] for v in (700.0, 1300.0, 900.0, "1500+", 1100.0)]
     for method, shape in (("known-shape", 2.0), ("fitted-shape", None)):
         decisions = column(rows, 1000.0, 1.5, 0.95, 2, method, shape)
-        assert decisions[:3] == ["PILOT", "CONTINUE", "CONTINUE"]
-        assert all(is_message(d) and "row 4" in d and "survivor" in d and "pass-fail" in d for d in decisions[3:])
+        assert decisions == ["PILOT", "CONTINUE", "CONTINUE", "CONTINUE", "CONTINUE"]
         assert decisions == per_row(rows, 1000.0, 1.5, 0.95, 2, method, shape)
-        assert is_message(UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95, method, shape))
-        assert is_message(TWO_STAGE_UNITS(rows, 1000.0, 1.5, 0.95, method, shape))
+        needed = sequential.units_needed_now([700.0, 1300.0, 900.0, 1500.0, 1100.0], 1000.0, 1.5, 0.95, method,
+                                             shape, survivors=[0, 0, 0, 1, 0])
+        assert UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95, method, shape) == needed.whole
+        assert TWO_STAGE_UNITS(rows, 1000.0, 1.5, 0.95, method, shape) == max(5, needed.whole)
 
 
-def test_survivor_below_the_threshold_is_refused():
+def test_a_suspension_below_the_threshold_takes_the_product_limit_estimate():
     rows = [[v] for v in (700.0, 1300.0, "900+", 1100.0)]
     decisions = column(rows, 1000.0, 1.5, 0.95, 2)
-    assert decisions[:2] == ["PILOT", "CONTINUE"]
-    assert all(is_message(d) and "row 3" in d and "below the threshold" in d for d in decisions[2:])
-    assert "below the threshold" in UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95)
+    assert decisions == ["PILOT", "CONTINUE", "CONTINUE", "CONTINUE"]
+    assert decisions == per_row(rows, 1000.0, 1.5, 0.95, 2)
+    # check value: by hand, product limit at 1000: one failure (700) among 4 at risk, Ŝ = 3/4;
+    # Greenwood G = 1/(4·3); σ̃² with n_e = (1-Ŝ)/(Ŝ G) = 4, p̃ = (3 + ½)/5 (product_limit.regularized_sigma2)
+    p_tilde = 3.5 / 5
+    factor = (1.959963984540054 / np.log(1.5)) ** 2
+    assert UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95) == int(np.ceil(factor / (p_tilde * (1 - p_tilde))))
     # a survivor at the threshold is a pass
     assert not is_message(STOP_DECISION([[700.0], ["1000+"]], 1000.0, 1.5, 0.95, 2))
 
 
-def test_core_refuses_survivors_it_cannot_use():
-    with pytest.raises(ValueError, match="pass-fail"):
-        sequential.decision_column([1.0, 2.0, 3.0], 1.5, 1.5, 0.95, 2, "fitted-shape", survivors=[0, 1, 0])
-    with pytest.raises(ValueError, match="below the threshold"):
-        sequential.decision_column([1.0, 2.0, 3.0], 2.5, 1.5, 0.95, 2, survivors=[0, 1, 0])
+def test_a_log_without_failures_continues_and_says_how_many_it_needs():
+    rows = [[v] for v in ("700+", "1300+", "900+", "1100+")]
+    assert column(rows, 1000.0, 50.0, 0.5, 2, "fitted-shape") == ["PILOT", "CONTINUE", "CONTINUE", "CONTINUE"]
+    message = UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95, "fitted-shape")
+    assert is_message(message) and "needs at least 2 failures" in message and "found 0" in message
+
+
+def test_core_refuses_survivor_flags_of_the_wrong_length():
+    with pytest.raises(ValueError, match="one flag per lifetime"):
+        sequential.decision_column([1.0, 2.0, 3.0], 1.5, 1.5, 0.95, 2, "fitted-shape", survivors=[0, 1])
 
 
 # ----------------------------------------------------------------- degenerate logs

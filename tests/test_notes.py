@@ -328,16 +328,23 @@ def test_formula_reads_survivor_marks_for_pass_fail():
     assert "at or before" in TAIL_METHOD_NOTES(without_marks, 100.0)[0][0]
 
 
-@pytest.mark.parametrize("method,shape,fragment", [("fitted-shape", None, "survivor"), ("known-shape", 2, "survivor")])
-def test_formula_refuses_survivors_for_gamma_methods(method, shape, fragment):
+@pytest.mark.parametrize("method,shape", [("fitted-shape", None), ("known-shape", 2)])
+def test_formula_states_the_censoring_assumption_for_gamma_methods(method, shape):
     values = [[v] for v in BELOW[:5]] + [["100+"]] * 5
-    result = TAIL_METHOD_NOTES(values, 100.0, method, shape)
-    assert isinstance(result, str) and result.startswith("#TAILSTOP!") and fragment in result
+    lines = [row[0] for row in TAIL_METHOD_NOTES(values, 100.0, method, shape)]
+    assert any("5 of 10 units suspended" in line and "independent of its lifetime" in line for line in lines)
+    assert any("50% of the units are suspended" in line for line in lines)
+    assert any("fit check not run" in line for line in lines)
 
 
-def test_formula_refuses_a_survivor_below_the_threshold():
-    result = TAIL_METHOD_NOTES([[10.0], [20.0], ["50+"], [130.0]], 100.0)
-    assert isinstance(result, str) and result.startswith("#TAILSTOP!") and "row 3" in result
+def test_formula_reads_a_suspension_below_the_threshold():
+    lines = [row[0] for row in TAIL_METHOD_NOTES([[10.0], [20.0], ["50+"], [130.0]], 100.0)]
+    assert any("1 of 4 units suspended before the threshold" in line for line in lines)
+
+
+def test_formula_says_how_many_failures_a_method_needs():
+    lines = [row[0] for row in TAIL_METHOD_NOTES([[10.0], ["20+"], ["50+"], ["130+"]], 100.0, "fitted-shape")]
+    assert "fitted-shape needs at least 2 failures" in lines[0] and "CONTINUE" in lines[0]
 
 
 @pytest.mark.parametrize("args,fragment", [

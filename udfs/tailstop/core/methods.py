@@ -24,6 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import accuracy as _accuracy
+from .censored import censored_estimate, is_censored
 from .models import DEFAULT_MODEL, get_model
 from .probability import TailProbability
 
@@ -288,6 +289,9 @@ def estimate_tail(observations, threshold, method="pass-fail", shape=None, survi
     estimator, lifetime = get_method(method), get_model(model)
     x = np.asarray(observations, dtype=float).ravel()
     _check_sample(x, threshold, estimator, shape, survivors, lifetime)
+    if is_censored(x, survivors, threshold, estimator.name):
+        fit = censored_estimate(x, survivors, threshold, estimator.name, shape, lifetime.name)
+        return TailEstimate(fit.method, fit.n, fit.tail, fit.sigma2, fit.shape, fit.scale)
     statistics = SufficientStatistics.of(x, threshold, survivors, model=lifetime.name, method=estimator.name,
                                          shape=shape)
     if estimator.name == "fitted-shape" and not (statistics.log_ratio > 1e-13
@@ -306,8 +310,8 @@ def _check_sample(x, threshold, model, shape, survivors, lifetime):
         raise ValueError(f"at least 2 units are needed (got {x.size})")
     if model.needs_shape and (shape is None or not (np.isfinite(shape) and shape > 0)):
         raise ValueError(f"known-shape needs the {lifetime.title} shape, a positive number")
-    if survivors is not None and model.uses_lifetimes and np.any(survivors):
-        raise ValueError(f"survivors (units stopped without failing) can only be used with pass-fail, not {model.name}")
+    if survivors is not None and np.size(survivors) != x.size:
+        raise ValueError(f"survivors must have one flag per lifetime ({x.size}, got {np.size(survivors)})")
 
 
 def _as_scalars(result: TailEstimate) -> TailEstimate:

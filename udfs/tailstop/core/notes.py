@@ -25,6 +25,17 @@ Warnings, in the order they are listed:
 ``few-on-a-side``
     Fewer than 5 units on one side of the threshold (for pass-fail this note
     gives way to ``one-side-only`` when that side is empty).
+``too-few-failures``, ``none-seen-beyond``
+    A log with suspended units (``censored.censoring_notes``) from which the
+    method cannot estimate yet: fewer failures than it needs (saying how
+    many), or (pass-fail) no unit seen past the threshold. Only these notes
+    are listed then, and the stopping rule says CONTINUE.
+``gamma-fit-skipped`` (suspended units)
+    The fit check needs every unit's failure time; it is not run on a log
+    with suspended units.
+``suspended-units``, ``many-suspended``
+    The log has units the method reads as censored: the independent-censoring
+    assumption, and a warning when more than 30 % of the units are suspended.
 ``accuracy-needs-more``
     Only when an accuracy and a confidence are given: the plug-in unit count
     (z / log d)² σ̂²_n, with σ̂²_n as the stopping rule uses it
@@ -40,6 +51,7 @@ from scipy import special, stats
 
 from .methods import METHOD_NAMES, SufficientStatistics, estimate_tail
 from .models.gamma.fit import gamma_fit_pvalue, shape_from_log_ratio
+from .censored import NOT_YET_CODES, censoring_notes
 from .sequential import units_needed_now
 
 __all__ = [
@@ -154,14 +166,17 @@ def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=Non
         raise ValueError(f"method must be one of {', '.join(METHOD_NAMES)} (got {method!r})")
     check_accuracy = _check_requested_accuracy(accuracy, confidence)
     x = np.asarray(values, dtype=float).ravel()
+    censoring = [Note(*item) for item in censoring_notes(x, survivors, threshold, method)]
+    if any(note.code in NOT_YET_CODES for note in censoring):
+        return censoring  # nothing to estimate yet; the rule continues
     estimate_tail(x, threshold, method, shape, survivors)  # validates, and fails where the estimate does
-    statistics = SufficientStatistics.of(x, threshold, survivors)
     notes = []
     if method in GAMMA_METHODS:
-        notes += _fit_notes(x)
-    if method == "known-shape":
+        notes += _fit_notes(x) if not censoring else [_fit_skipped(censoring[-1].figures)]
+    if method == "known-shape" and not censoring:
         notes += _shape_notes(x, shape)
-    notes += _side_notes(int(statistics.n), int(statistics.exceedances), method)
+    notes += _side_notes(x.size, *_sides(x, threshold, survivors), method)
+    notes += censoring
     if check_accuracy:
         notes += _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors)
     return notes
@@ -200,8 +215,18 @@ def _shape_notes(x, shape):
                  {"given": test.given, "fitted": test.fitted, "pvalue": test.pvalue})]
 
 
-def _side_notes(n, beyond, method):
-    below = n - beyond
+def _sides(x, threshold, survivors):
+    """(units seen beyond the threshold, failures at or below it); a suspension below it is neither."""
+    flags = np.zeros(x.size, dtype=bool) if survivors is None else np.asarray(survivors, dtype=bool).ravel()
+    return int(np.sum((x > threshold) | (flags & (x >= threshold)))), int(np.sum(~flags & (x <= threshold)))
+
+
+def _fit_skipped(figures):
+    return Note("gamma-fit-skipped", f"gamma fit check not run: it needs every unit's failure time "
+                                     f"({figures['suspended']} units are suspended)", figures)
+
+
+def _side_notes(n, beyond, below, method):
     figures = {"units": n, "beyond": beyond, "below": below}
     if method == "pass-fail" and (beyond == 0 or below == 0):
         side = "outlasted" if below == 0 else "failed at or before"

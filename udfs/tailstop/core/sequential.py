@@ -45,6 +45,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .censored import CensoredRule, is_censored
 from .methods import METHOD_NAMES, SufficientStatistics
 from .models.gamma.fit import shape_from_log_ratio
 from .models.gamma.tail import log_density_term, tail_probability_standard
@@ -315,11 +316,6 @@ def _check_log(lifetimes, threshold, method, shape, survivors):
         raise ValueError(f"survivors must have one flag per lifetime ({x.size}, got {flags.size})")
     if not flags.any():
         return x, None
-    if method != "pass-fail":
-        raise ValueError(f"survivors (units stopped without failing) can only be used with pass-fail, "
-                         f"not {method}")
-    if np.any(flags & (x < threshold)):
-        raise ValueError("a survivor taken off test below the threshold says nothing about outlasting it")
     return x, flags
 
 
@@ -331,7 +327,7 @@ def _first_stop(x, survivors, threshold, factor, pilot, method, shape, check_eve
     check_points = np.arange(int(pilot), x.size + 1, int(check_every))
     if check_points.size == 0:
         return None
-    evaluator = _EVALUATORS[method]
+    evaluator = _evaluator(x, survivors, threshold, method)
     sums = evaluator.running_sums(x, threshold, survivors)
     start, size = 0, _FIRST_CHUNK
     while start < check_points.size:
@@ -348,7 +344,7 @@ def _current_sigma2(x, survivors, threshold, method, shape):
     """σ̂²_n from all n units, exactly as the rule computes it at n; ValueError where undefined."""
     if x.size < MIN_PILOT:
         raise ValueError(f"at least {MIN_PILOT} units are needed (got {x.size})")
-    evaluator = _EVALUATORS[method]
+    evaluator = _evaluator(x, survivors, threshold, method)
     sums = evaluator.running_sums(x, threshold, survivors)
     return evaluator.current_sigma2(sums, x.size, threshold, shape)
 
@@ -493,3 +489,10 @@ class _FittedShape:
 _EVALUATORS = {"pass-fail": _PassFail, "known-shape": _KnownShape, "fitted-shape": _FittedShape}
 
 
+
+
+def _evaluator(x, survivors, threshold, method):
+    """The method's evaluator; the censored one when the log has a suspension the method must censor."""
+    if is_censored(x, survivors, threshold, method):
+        return CensoredRule(_EVALUATORS[method], method)
+    return _EVALUATORS[method]

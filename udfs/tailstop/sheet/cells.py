@@ -341,21 +341,6 @@ class LogCells:
         return LogCells(self.values[keep], self.survivors[keep], self.rows[keep], self.columns[keep],
                         self.n_rows, self.filled_rows, int(self.rows[first]), text, self.name, self.single_column)
 
-    def for_method(self, method, threshold) -> "LogCells":
-        """The log cut at the first survivor the method cannot use.
-
-        pass-fail uses a survivor taken off at or beyond the threshold (it
-        counts as beyond it) and refuses one taken off below it; the gamma
-        methods refuse every survivor (they need failure times).
-        """
-        if method != "pass-fail":
-            return self.refuse(self.survivors, lambda value: (
-                f"marks a survivor ({value:g}+); {method} needs every unit's failure time, "
-                f"use pass-fail for a log with survivors"))
-        return self.refuse(self.survivors & (self.values < threshold), lambda value: (
-            f"marks a survivor taken off at {value:g}, below the threshold {threshold:g}; it cannot count as "
-            f"outlasting it: test it to the threshold or clear the cell"))
-
 
 def read_log_cells(values, name="observations", *, single_column=False) -> LogCells:
     """Read a test-log range: lifetimes, survivor marks, blanks, and the first unreadable cell.

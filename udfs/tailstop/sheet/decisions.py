@@ -2,14 +2,13 @@
 
 The log is one column, one unit per row, in test order.
 
-Survivors (pass-fail). A unit taken off test at or beyond the threshold
-without failing is written as its time off test followed by ``+``
-(``1500+``, the usual censoring notation of reliability logs), in the
-lifetime cell itself: the mark stays with its unit when rows are sorted,
-copied or filled down, and needs no second range. It counts as beyond the
-threshold. A survivor taken off below the threshold is refused (it says
-nothing about outlasting it), and so is any survivor under known-shape or
-fitted-shape, which need every unit's failure time.
+Suspended units. A unit that had not failed when last seen (still running,
+or taken off test) is written as that time followed by ``+`` (``1500+``,
+the usual censoring notation of reliability logs), in the lifetime cell
+itself: the mark stays with its unit when rows are sorted, copied or filled
+down, and needs no second range. Every method reads it as right-censored
+(``core/censored.py``); it counts as a unit for the pilot and for n. A log
+with too few failures for the method says CONTINUE (PILOT in the pilot).
 
 Blank rows. A blank row (or text of spaces, or "" from a formula) is not a
 unit: the decision formulas show an empty cell there, and count units, not
@@ -39,11 +38,11 @@ _LARGEST_COUNT = 10**9
 
 HELP_DECISIONS = {
     "observations": "Column of lifetimes in test order, one unit per row (fill down as $B$2:B2); blank rows are "
-                    "skipped; pass-fail: a unit taken off at or past the threshold without failing is written 1500+",
-    "pilot_observations": "The pilot's lifetimes, one unit per cell; blank cells are skipped; pass-fail: a unit taken "
-                          "off at or past the threshold without failing is written 1500+",
-    "units_so_far": "Lifetimes of all units so far, one per cell; blank cells are skipped; pass-fail: a unit taken "
-                    "off at or past the threshold without failing is written 1500+",
+                    "skipped; a unit not failed when last seen at 1500 (running or taken off) is written 1500+",
+    "pilot_observations": "The pilot's lifetimes, one unit per cell; blank cells are skipped; a unit not failed "
+                          "when last seen at 1500 is written 1500+",
+    "units_so_far": "Lifetimes of all units so far, one per cell; blank cells are skipped; a unit not failed when "
+                    "last seen at 1500 is written 1500+",
     "pilot": "Pilot sample: units tested before the rule is first consulted (a whole number >= 2)",
     "check_every": "Optional: consult the rule only every k-th unit after the pilot, for a rig that tests k at a "
                    "time (default 1)",
@@ -76,9 +75,8 @@ def _check_every(value) -> int:
 
 
 def _read_log(observations, request, name="observations", *, single_column) -> cells.LogCells:
-    """The log's units, cut at the first cell the method cannot use."""
-    log = cells.read_log_cells(observations, name, single_column=single_column)
-    return log.for_method(request.method, request.threshold)
+    """The log's units, cut at the first cell that cannot be read."""
+    return cells.read_log_cells(observations, name, single_column=single_column)
 
 
 def _survivors(log):

@@ -19,7 +19,7 @@ from .formula import formula
 
 # Help texts shared by several formulas (the spreadsheet shows them per argument).
 HELP = {
-    "observations": "Range of lifetimes, one unit per cell (hours, cycles, ...); blanks skipped; 1500+ marks a pass-fail survivor",
+    "observations": "Range of lifetimes, one unit per cell (hours, cycles, ...); blanks skipped; 1500+ marks a unit not failed when last seen at 1500",
     "failure_times": "Range of failure times, one unit per cell (hours, cycles, ...); blank cells are skipped",
     "threshold": "The threshold c > 0 (mission time, warranty limit), same unit as the lifetimes",
     "shape": "Gamma shape a > 0 (dimensionless)",
@@ -57,14 +57,13 @@ class LogArguments:
 def clean_log_arguments(observations, threshold, method, shape) -> LogArguments:
     """Clean (observations, threshold, method, shape) as a spreadsheet passes them.
 
-    A pass-fail log may mark survivors (``1500+``, taken off test at or
-    beyond the threshold without failing): they count as beyond it.
+    A log may mark suspended units (``1500+``: not failed when last seen at
+    1500, still running or taken off test); every method reads them as
+    right-censored (``core/censored.py``).
     """
     name, shape_value = clean_method_and_shape(method, shape)
     c = cells.positive(threshold, "threshold")
     log = cells.read_log_cells(observations)
-    if not log.problem:
-        log = log.for_method(name, c)
     if log.problem:
         raise cells.InputError(log.problem)
     if log.values.size < 2:

@@ -1,8 +1,8 @@
 """Formula: the warnings that apply to an estimate, one short line each.
 
-A pass-fail log may mark survivors as the estimate formulas read them
-(``1500+``: taken off test at or beyond the threshold without failing); they
-count as beyond the threshold.
+A log may mark suspended units as the estimate formulas read them
+(``1500+``: not failed when last seen at 1500). A log with too few failures
+for the method gets the note saying how many it needs, not an error.
 
 The formula has no accuracy or confidence argument, so it lists the model
 and data warnings only. Whether the requested accuracy needs more units than

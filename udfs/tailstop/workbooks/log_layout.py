@@ -310,7 +310,7 @@ def _analyse(log, values, plan):
     stop_offset = decisions.index("STOP") if "STOP" in decisions else None
     rows_used = len(values) if stop_offset is None else stop_offset + 1
     used = _as_range(values[:rows_used])
-    reading = cells.read_log_cells(column).for_method(plan.method, plan.threshold)
+    reading = cells.read_log_cells(column)
     units_used = int((reading.rows < rows_used).sum())
     if units_used < MIN_PILOT:
         raise LogProblem(f"{log.text()} holds {units_used} unit{'s' if units_used != 1 else ''}; "
@@ -332,8 +332,6 @@ def _analyse(log, values, plan):
 
 def _refuse_bad_cells(log, column, plan):
     reading = cells.read_log_cells(column, "log", single_column=True)
-    if reading.problem is None:
-        reading = reading.for_method(plan.method, plan.threshold)
     if reading.problem is not None:
         prefix = f"log: row {reading.problem_row + 1} "
         reason = reading.problem[len(prefix):] if reading.problem.startswith(prefix) else reading.problem

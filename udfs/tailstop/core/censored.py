@@ -1,0 +1,327 @@
+"""Estimates and the stopping rule's σ̂² from a log with suspended units.
+
+A suspended unit (``1200+`` in its cell) had not failed at the time shown:
+still running, taken off for another reason, or stopped at the end of a
+time-terminated test. Each method reads it as right-censored:
+
+* ``pass-fail``: a unit suspended at or beyond the threshold outlasted it
+  and simply counts as beyond; once a unit is suspended below the threshold
+  the estimate is the product-limit estimate of P(X > c) with Greenwood's
+  variance (``product_limit``). Without such a unit it is the plain share
+  beyond, with the same numbers as a log without suspensions.
+* ``known-shape`` and ``fitted-shape``: maximum likelihood with the density
+  for each failure and the survival function for each suspension, σ̂² by the
+  delta method on the observed information (``models.<model>.censored``).
+  A log without suspensions takes the complete-data path unchanged.
+
+Every unit, failed or suspended, counts in n (for the pilot and for n in the
+stopping rule), so σ̂² = n · Var(log q̂) carries the current share of
+suspended units, and (z / log d)² σ̂² is the number of units the accuracy
+needs if units keep being suspended at that rate.
+
+All of it assumes independent censoring: a unit's suspension says nothing
+about its own lifetime beyond that it had not failed yet. A unit pulled
+because it looked about to fail breaks that, and the estimate of p comes out
+too high.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .models.gamma import censored as _gamma_censored
+from .models.gamma.fit import shape_from_log_ratio
+from .models.gamma.tail import tail_probability_standard
+from .probability import TailProbability
+from .product_limit import product_limit, regularized_sigma2
+
+__all__ = ["FAILURES_NEEDED", "CensoredEstimate", "censored_units", "is_censored", "failures_message",
+           "censored_estimate", "CensoredRule", "censoring_notes"]
+
+# The fewest failures each method needs before it can estimate anything.
+FAILURES_NEEDED = {"pass-fail": 1, "known-shape": 1, "fitted-shape": 2}
+
+# The censored maximum likelihood of each model.
+_FITS = {"gamma": _gamma_censored}
+
+# Cells (check points × suspensions) handled at a time by the rule.
+_RULE_CELLS = 1 << 20
+
+
+def censored_units(times, suspended, threshold, method):
+    """Per unit: True for a suspension the method must treat as censored.
+
+    pass-fail reads a unit suspended at or beyond the threshold as beyond it,
+    so only suspensions below the threshold are censored for it.
+    """
+    x = np.asarray(times, dtype=float).ravel()
+    if suspended is None:
+        return np.zeros(x.size, dtype=bool)
+    flags = np.asarray(suspended, dtype=bool).ravel()
+    return flags & (x < threshold) if method == "pass-fail" else flags
+
+
+def is_censored(times, suspended, threshold, method) -> bool:
+    """True when the log has a suspension the method must treat as censored."""
+    return bool(censored_units(times, suspended, threshold, method).any())
+
+
+def failures_message(method, failures, threshold=None) -> str:
+    """What a method needs when a log has too few failures."""
+    needed = FAILURES_NEEDED[method]
+    if method == "pass-fail":
+        return (f"pass-fail needs at least {needed} failure at or below the threshold {threshold:g} "
+                f"(found {failures}) to estimate from a log with suspended units")
+    plural = "s" if needed > 1 else ""
+    return (f"{method} needs at least {needed} failure{plural} (units not marked +) to estimate "
+            f"from a log with suspended units (found {failures})")
+
+
+# --------------------------------------------------------------------------- one log
+
+
+@dataclass(frozen=True)
+class CensoredEstimate:
+    """What ``methods.TailEstimate`` holds, from a log with suspended units (scalars)."""
+
+    method: str
+    n: int
+    tail: TailProbability
+    sigma2: float
+    shape: float | None = None
+    scale: float | None = None
+
+
+def censored_estimate(times, suspended, threshold, method, shape=None, model="gamma") -> CensoredEstimate:
+    """The estimate of p = P(X > threshold) from a log with suspended units (scalars).
+
+    Parameters
+    ----------
+    times : array_like
+        Positive times: the failure time, or the time a suspended unit was
+        last seen running.
+    suspended : array_like of bool
+    threshold : float
+    method : {'pass-fail', 'known-shape', 'fitted-shape'}
+    shape : float, optional
+        The gamma shape, for known-shape.
+
+    Raises
+    ------
+    ValueError
+        Too few failures for the method, or (pass-fail) no unit still on test
+        at the threshold, or (fitted-shape) a likelihood without a maximum.
+    """
+    x = np.asarray(times, dtype=float).ravel()
+    flags = np.asarray(suspended, dtype=bool).ravel()
+    if method == "pass-fail":
+        return _pass_fail_estimate(x, flags, threshold)
+    _check_model(model)
+    failures = int((~flags).sum())
+    if failures < FAILURES_NEEDED[method]:
+        raise ValueError(failures_message(method, failures))
+    data = _prefix_data(x, flags, np.array([x.size]))
+    shape_value, log_scale, sigma2 = _model_fit(data, threshold, method, shape)
+    if not (np.isfinite(log_scale[0]) and np.isfinite(sigma2[0])):
+        raise ValueError(f"{method}: the gamma likelihood of these failures and suspensions has no maximum "
+                         f"(found {failures} failures); test more units to failure")
+    scale = float(np.exp(log_scale[0]))
+    a = float(shape_value[0])
+    tail = tail_probability_standard(a, threshold / scale)
+    return CensoredEstimate(method, int(x.size), _scalar_tail(tail), float(sigma2[0]), a, scale)
+
+
+def _check_model(model):
+    if model not in _FITS:
+        raise ValueError(f"suspended units (marked +) work with the {', '.join(_FITS)} model; "
+                         f"not yet with {model}")
+
+
+def _pass_fail_estimate(x, flags, threshold):
+    estimate = product_limit(x, flags, threshold)
+    if estimate.beyond == 0 and estimate.log_survival > -np.inf:
+        raise ValueError(f"pass-fail: no unit has been seen past the threshold {threshold:g} (every unit that "
+                         f"did not fail was suspended before it); the product-limit estimate cannot see past "
+                         f"{x[flags].max():g}")
+    return CensoredEstimate("pass-fail", int(x.size), _scalar_tail(estimate.tail), float(estimate.sigma2))
+
+
+def _scalar_tail(tail):
+    return TailProbability(float(np.asarray(tail.p)), float(np.asarray(tail.log_p)),
+                           float(np.asarray(tail.log_cdf)))
+
+
+# --------------------------------------------------------------------------- many prefixes at once
+
+
+class _PrefixData:
+    """Failures and suspensions of the first n units, for several n at once."""
+
+    def __init__(self, units, failures, log_ratio, suspension_times, suspension_weights):
+        self.units = units
+        self.failures = failures           # (r, Σx, Σ log x) over the failures
+        self.log_ratio = log_ratio         # log(mean) - mean(log) over the failures
+        self.suspensions = (suspension_times, suspension_weights)
+
+
+def _prefix_data(x, flags, n):
+    failed = ~flags
+    failure_times = x[failed]
+    r = np.cumsum(failed)[n - 1]
+    # sums relative to the first failure keep log(mean) - mean(log) accurate (as methods.SufficientStatistics)
+    reference = failure_times[0] if failure_times.size else 1.0
+    scaled = np.concatenate([[0.0], np.cumsum(failure_times / reference)])[r]
+    logs = np.concatenate([[0.0], np.cumsum(np.log(failure_times / reference))])[r]
+    count = np.maximum(r, 1)
+    total = scaled * reference
+    log_total = r * np.log(reference) + logs
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_ratio = np.where(r > 0, np.maximum(np.log(scaled / count) - logs / count, 0.0), np.nan)
+    times = x[flags]
+    count = np.cumsum(flags)[n - 1]
+    width = int(count.max()) if count.size else 0
+    suspension_times = np.broadcast_to(times[:width], (n.size, width))
+    weights = (np.arange(width) < count[:, None]).astype(float)
+    return _PrefixData(n, (r.astype(float), total, log_total), log_ratio, suspension_times, weights)
+
+
+def _model_fit(data, threshold, method, shape):
+    """(shape, log-scale, σ̂²) per prefix; NaN where the estimate does not exist."""
+    fits = _gamma_censored
+    failures, suspensions = data.failures, data.suspensions
+    if method == "known-shape":
+        shape_value = np.full(data.units.shape, float(shape))
+        log_scale = fits.fit_known_shape(failures, suspensions, shape_value)
+        with np.errstate(all="ignore"):
+            sigma2 = fits.sigma2_known_shape(failures, suspensions, shape_value, log_scale, threshold, data.units)
+        return shape_value, log_scale, sigma2
+    with np.errstate(all="ignore"):
+        start = shape_from_log_ratio(np.where(data.log_ratio > 0, data.log_ratio, np.nan))
+    shape_value, log_scale = fits.fit_shape_and_scale(failures, suspensions, start)
+    ok = np.isfinite(shape_value)
+    safe = np.where(ok, shape_value, 1.0)
+    with np.errstate(all="ignore"):
+        sigma2 = fits.sigma2_fitted_shape(failures, suspensions, safe, np.where(ok, log_scale, 0.0), threshold,
+                                          data.units)
+    return shape_value, log_scale, np.where(ok, sigma2, np.nan)
+
+
+def _stop_condition(n, factor, sigma2):
+    with np.errstate(invalid="ignore"):
+        return (n >= factor * sigma2) & np.isfinite(sigma2)
+
+
+class CensoredRule:
+    """The stopping rule's σ̂² on a log with suspended units, for ``sequential``.
+
+    Check points before the first censored suspension are left to the
+    evaluator of the complete log (``plain``), so their decisions are the
+    very same; after it σ̂² is the censored one: the regularized product-limit
+    σ̃² for pass-fail (``product_limit.regularized_sigma2``; the rule never
+    stops while no unit has failed at or below the threshold or none is seen
+    beyond it), the observed-information σ̂² for the gamma methods (the rule
+    continues while there are too few failures).
+    """
+
+    def __init__(self, plain, method):
+        self.plain = plain
+        self.method = method
+
+    def running_sums(self, x, threshold, survivors):
+        censored = censored_units(x, survivors, threshold, self.method)
+        first = int(np.argmax(censored)) + 1 if censored.any() else x.size + 1
+        beyond = None if survivors is None else np.asarray(survivors, dtype=bool) & ~censored
+        plain = self.plain.running_sums(x, threshold, beyond if self.method == "pass-fail" else None)
+        return plain, x, np.asarray(survivors, dtype=bool), first
+
+    def sigma2(self, sums, n, threshold, shape):
+        """σ̂²_n at the check points n (all after the first censored suspension)."""
+        _, x, flags, _ = sums
+        if self.method == "pass-fail":
+            return regularized_sigma2(product_limit(x, flags, threshold, prefixes=n))
+        out = np.empty(n.size)
+        width = max(1, int(flags[: n.max()].sum()))
+        rows = max(1, _RULE_CELLS // width)
+        for start in range(0, n.size, rows):
+            part = n[start:start + rows]
+            out[start:start + rows] = _model_fit(_prefix_data(x, flags, part), threshold, self.method, shape)[2]
+        return out
+
+    def stops(self, sums, n, factor, threshold, shape):
+        plain, _, _, first = sums
+        early = n < first
+        hits = np.zeros(n.size, dtype=bool)
+        if early.any():
+            hits[early] = self.plain.stops(plain, n[early], factor, threshold, shape)
+        late = np.flatnonzero(~early)
+        if late.size:
+            hits[late] = _stop_condition(n[late], factor, self.sigma2(sums, n[late], threshold, shape))
+        return hits
+
+    def current_sigma2(self, sums, n, threshold, shape):
+        plain, x, flags, first = sums
+        if n < first:
+            return self.plain.current_sigma2(plain, n, threshold, shape)
+        sigma2 = float(self.sigma2(sums, np.array([n]), threshold, shape)[0])
+        if np.isfinite(sigma2):
+            return sigma2
+        raise ValueError(self._undefined(x[:n], flags[:n], threshold))
+
+    def _undefined(self, x, flags, threshold):
+        if self.method == "pass-fail":
+            estimate = product_limit(x, flags, threshold)
+            if estimate.failures_below == 0:
+                return failures_message("pass-fail", 0, threshold) + "; the units needed cannot be estimated yet"
+            return (f"no unit has been seen past the threshold {threshold:g} yet; the units needed cannot be "
+                    f"estimated until one is")
+        failures = int((~flags).sum())
+        if failures < FAILURES_NEEDED[self.method]:
+            return failures_message(self.method, failures)
+        return f"{self.method}: the likelihood of these failures and suspensions has no maximum yet"
+
+
+# --------------------------------------------------------------------------- what the notes say
+
+# A share of suspended units above this gets its own warning.
+LARGE_SUSPENDED_SHARE = 0.3
+# Notes that mean the method cannot estimate from the log yet.
+NOT_YET_CODES = ("too-few-failures", "none-seen-beyond")
+
+
+def censoring_notes(times, suspended, threshold, method):
+    """Warnings about the suspended units of a log, as (code, text, figures); empty without any.
+
+    ``too-few-failures`` (or ``none-seen-beyond`` for pass-fail) says that
+    the method cannot estimate yet and the rule goes on (CONTINUE);
+    ``suspended-units`` states the independent-censoring assumption;
+    ``many-suspended`` warns when more than LARGE_SUSPENDED_SHARE of the
+    units are suspended.
+    """
+    x = np.asarray(times, dtype=float).ravel()
+    censored = censored_units(x, suspended, threshold, method)
+    if not censored.any():
+        return []
+    flags = np.asarray(suspended, dtype=bool).ravel()
+    n, count = int(x.size), int(censored.sum())
+    failures = int(np.sum(~flags & (x <= threshold))) if method == "pass-fail" else int(np.sum(~flags))
+    figures = {"units": n, "suspended": count, "failures": failures}
+    notes = []
+    if failures < FAILURES_NEEDED[method]:
+        notes.append(("too-few-failures", f"{failures_message(method, failures, threshold)}: the rule says "
+                                          f"CONTINUE until then", figures))
+    elif method == "pass-fail" and product_limit(x, flags, threshold).beyond == 0:
+        notes.append(("none-seen-beyond", f"no unit has been seen past the threshold {threshold:g} (the others "
+                                          f"were suspended before it): no estimate yet, the rule says CONTINUE",
+                      figures))
+    where = " before the threshold" if method == "pass-fail" else ""
+    notes.append(("suspended-units",
+                  f"{count} of {n} units suspended{where} (marked +): the estimate assumes a unit's suspension "
+                  f"is independent of its lifetime (a unit pulled because it looked about to fail breaks this)",
+                  figures))
+    if count > LARGE_SUSPENDED_SHARE * n:
+        notes.append(("many-suspended",
+                      f"{count / n:.0%} of the units are suspended: with heavy censoring the stated accuracy is "
+                      f"optimistic; plan with a test time to see the real coverage",
+                      figures))
+    return notes
