@@ -26,6 +26,7 @@ from .estimate import (  # noqa: F401
     UNITS_REQUIRED,
     UNITS_REQUIRED_FROM_P,
 )
+from .fits import FIT_COMPARE, FIT_PVALUE, FIT_SCALE, FIT_SHAPE  # noqa: F401
 from .formula import FORMULAS
 from .notes import TAIL_METHOD_NOTES  # noqa: F401
 from .planning import (  # noqa: F401

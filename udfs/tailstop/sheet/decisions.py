@@ -59,7 +59,7 @@ class _Request:
 
 
 def _request(threshold, accuracy, confidence, method, shape) -> _Request:
-    name, shape_value = clean_method_and_shape(method, shape)
+    name, shape_value, _ = clean_method_and_shape(method, shape)
     return _Request(cells.positive(threshold, "threshold"), cells.accuracy(accuracy), cells.confidence(confidence),
                     name, shape_value)
 

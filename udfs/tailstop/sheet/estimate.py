@@ -1,4 +1,8 @@
-"""Formulas: exceedance probability, estimates, fixed-accuracy bounds, planning sizes, gamma fit."""
+"""Formulas: exceedance probability, estimates, fixed-accuracy bounds, planning sizes, gamma fit.
+
+Every formula that takes a method, a shape or a scale takes the lifetime model as its last
+optional argument: gamma (the default), weibull or lognormal.
+"""
 from __future__ import annotations
 
 from dataclasses import dataclass
@@ -12,8 +16,8 @@ from ..core.methods import (
     model_sigma2,
     pass_fail_sigma2_from_p,
 )
+from ..core.models import DEFAULT_MODEL, MODEL_NAMES, get_model
 from ..core.models.gamma.fit import fit_gamma, gamma_fit_pvalue
-from ..core.models.gamma.tail import tail_probability
 from . import cells
 from .formula import formula
 
@@ -22,46 +26,85 @@ HELP = {
     "observations": "Range of lifetimes, one unit per cell (hours, cycles, ...); blanks skipped; 1500+ marks a unit not failed when last seen at 1500",
     "failure_times": "Range of failure times, one unit per cell (hours, cycles, ...); blank cells are skipped",
     "threshold": "The threshold c > 0 (mission time, warranty limit), same unit as the lifetimes",
-    "shape": "Gamma shape a > 0 (dimensionless)",
-    "scale": "Gamma scale s > 0, same unit as the lifetimes (mean = shape * scale)",
+    "shape": "Shape > 0 of the model: gamma a, Weibull beta (scipy weibull_min c), lognormal sigma (sd of ln X)",
+    "scale": "Scale > 0, unit of the lifetimes: gamma s (mean = shape * scale), Weibull eta, lognormal median e^mu",
     "accuracy": "Accuracy factor d > 1: the odds are to be known within a factor d (e.g. 1.5)",
     "confidence": "Confidence level between 0 and 1, e.g. 0.95",
     "method": "Optional: pass-fail (default), known-shape or fitted-shape",
-    "known_shape": "Optional: the gamma shape, required when method is known-shape",
+    "known_shape": "Optional: the model's shape, required when method is known-shape",
+    "model": "Optional lifetime model: gamma (default), weibull or lognormal (as scipy.stats parameterises them)",
     "units": "Number of units tested (a whole number >= 1)",
     "p_guess": "Guessed probability of exceeding the threshold, between 0 and 1",
 }
 
 
-def clean_method_and_shape(method, shape):
-    """The method name and, for known-shape, its shape; checked together."""
+def clean_model(model) -> str:
+    """The lifetime model name (gamma when blank), case-insensitive; the allowed names otherwise."""
+    if cells.is_missing(model):
+        return DEFAULT_MODEL
+    if isinstance(model, (list, tuple)):
+        flat = [v for row in model for v in (row if isinstance(row, (list, tuple)) else [row])]
+        model = flat[0] if len(flat) == 1 else model
+    text = model.strip().lower() if isinstance(model, str) else None
+    if text not in MODEL_NAMES:
+        shown = model if isinstance(model, str) and len(model) <= 20 else None
+        got = f" (got {shown!r})" if shown is not None else ""
+        raise cells.InputError(f"model must be one of {', '.join(MODEL_NAMES)}{got}")
+    return text
+
+
+def _for_model(model_given, name):
+    """Runs a parameter check; its message names the model and the allowed models when a model was given."""
+    def check(clean, *args):
+        try:
+            return clean(*args)
+        except cells.InputError as problem:
+            if not model_given:
+                raise
+            raise cells.InputError(f"{problem} for the {get_model(name).title} model "
+                                   f"(models: {', '.join(MODEL_NAMES)})") from None
+    return check
+
+
+def clean_shape_and_scale(shape, scale, model):
+    """(shape, scale, model name) for a formula that takes guessed model parameters."""
+    name = clean_model(model)
+    check = _for_model(not cells.is_missing(model), name)
+    return check(cells.positive, shape, "shape"), check(cells.positive, scale, "scale"), name
+
+
+def clean_method_and_shape(method, shape, model=None):
+    """The method name, for known-shape its shape, and the model name; checked together."""
     name = cells.method_name(method, METHOD_NAMES)
+    model_name = clean_model(model)
     if name == "known-shape":
+        title = get_model(model_name).title
         if cells.is_missing(shape):
-            raise cells.InputError("known-shape needs the gamma shape (the shape argument)")
-        return name, cells.positive(shape, "shape")
-    return name, None
+            raise cells.InputError(f"known-shape needs the {title} shape (the shape argument)")
+        return name, _for_model(not cells.is_missing(model), model_name)(cells.positive, shape, "shape"), model_name
+    return name, None, model_name
 
 
 @dataclass(frozen=True)
 class LogArguments:
-    """The arguments of a formula over a log, cleaned: method, shape, threshold, units, survivors."""
+    """The arguments of a formula over a log, cleaned: method, shape, threshold, units, survivors, model."""
 
     method: str
     shape: float | None
     threshold: float
     values: np.ndarray
     survivors: np.ndarray | None
+    model: str = DEFAULT_MODEL
 
 
-def clean_log_arguments(observations, threshold, method, shape) -> LogArguments:
+def clean_log_arguments(observations, threshold, method, shape, model=None) -> LogArguments:
     """Clean (observations, threshold, method, shape) as a spreadsheet passes them.
 
     A log may mark suspended units (``1500+``: not failed when last seen at
     1500, still running or taken off test); every method reads them as
     right-censored (``core/censored.py``).
     """
-    name, shape_value = clean_method_and_shape(method, shape)
+    name, shape_value, model_name = clean_method_and_shape(method, shape, model)
     c = cells.positive(threshold, "threshold")
     log = cells.read_log_cells(observations)
     if log.problem:
@@ -69,13 +112,14 @@ def clean_log_arguments(observations, threshold, method, shape) -> LogArguments:
     if log.values.size < 2:
         raise cells.InputError(f"observations: needs at least 2 lifetimes (found {log.values.size})")
     survivors = log.survivors if log.survivors.any() else None
-    return LogArguments(name, shape_value, c, log.values, survivors)
+    return LogArguments(name, shape_value, c, log.values, survivors, model_name)
 
 
-def estimate_from_cells(observations, threshold, method, shape):
+def estimate_from_cells(observations, threshold, method, shape, model=None):
     """The core estimate for formula arguments as a spreadsheet passes them."""
-    log = clean_log_arguments(observations, threshold, method, shape)
-    return estimate_tail(log.values, log.threshold, log.method, log.shape, survivors=log.survivors)
+    log = clean_log_arguments(observations, threshold, method, shape, model)
+    return estimate_tail(log.values, log.threshold, log.method, log.shape, survivors=log.survivors,
+                         model=log.model)
 
 
 def _needs_both_sides(estimate):
@@ -84,32 +128,33 @@ def _needs_both_sides(estimate):
         raise cells.InputError(f"no unit {side} the threshold yet; bounds need units on both sides")
 
 
-@formula(threshold=HELP["threshold"], shape=HELP["shape"], scale=HELP["scale"])
-def TAIL_PROB(threshold, shape, scale):
-    """Probability that a gamma lifetime exceeds the threshold, P(X > threshold), accurate in the far tail."""
+@formula(threshold=HELP["threshold"], shape=HELP["shape"], scale=HELP["scale"], model=HELP["model"])
+def TAIL_PROB(threshold, shape, scale, model=None):
+    """Probability that a lifetime exceeds the threshold, P(X > threshold), accurate in the far tail."""
     c = cells.number(threshold, "threshold")
     if c < 0:
         raise cells.InputError(f"threshold must be >= 0 (got {c:g})")
-    return tail_probability(c, cells.positive(shape, "shape"), cells.positive(scale, "scale")).p
+    a, s, name = clean_shape_and_scale(shape, scale, model)
+    return get_model(name).tail_probability(c, a, s).p
 
 
 @formula(
     ranges=("observations",), observations=HELP["observations"], threshold=HELP["threshold"],
-    method=HELP["method"], shape=HELP["known_shape"],
+    method=HELP["method"], shape=HELP["known_shape"], model=HELP["model"],
 )
-def TAIL_PROB_EST(observations, threshold, method=None, shape=None):
+def TAIL_PROB_EST(observations, threshold, method=None, shape=None, model=None):
     """Estimated probability that a unit outlasts the threshold, from the test log."""
-    return estimate_from_cells(observations, threshold, method, shape).p
+    return estimate_from_cells(observations, threshold, method, shape, model).p
 
 
 @formula(
     ranges=("observations",), returns="row", observations=HELP["observations"], threshold=HELP["threshold"],
-    accuracy=HELP["accuracy"], method=HELP["method"], shape=HELP["known_shape"],
+    accuracy=HELP["accuracy"], method=HELP["method"], shape=HELP["known_shape"], model=HELP["model"],
 )
-def TAIL_PROB_BOUNDS(observations, threshold, accuracy, method=None, shape=None):
+def TAIL_PROB_BOUNDS(observations, threshold, accuracy, method=None, shape=None, model=None):
     """Fixed-accuracy bounds (low, high) for the probability of outlasting the threshold; a 1x2 row."""
     d = cells.accuracy(accuracy)
-    estimate = estimate_from_cells(observations, threshold, method, shape)
+    estimate = estimate_from_cells(observations, threshold, method, shape, model)
     _needs_both_sides(estimate)
     interval = estimate.probability_interval(d)
     return [[interval.low, interval.high]]
@@ -117,24 +162,23 @@ def TAIL_PROB_BOUNDS(observations, threshold, accuracy, method=None, shape=None)
 
 @formula(
     ranges=("observations",), returns="row", observations=HELP["observations"], threshold=HELP["threshold"],
-    accuracy=HELP["accuracy"], method=HELP["method"], shape=HELP["known_shape"],
+    accuracy=HELP["accuracy"], method=HELP["method"], shape=HELP["known_shape"], model=HELP["model"],
 )
-def TAIL_ODDS_BOUNDS(observations, threshold, accuracy, method=None, shape=None):
+def TAIL_ODDS_BOUNDS(observations, threshold, accuracy, method=None, shape=None, model=None):
     """Fixed-accuracy bounds (odds/d, odds*d) for the odds of outlasting the threshold; a 1x2 row."""
     d = cells.accuracy(accuracy)
-    estimate = estimate_from_cells(observations, threshold, method, shape)
+    estimate = estimate_from_cells(observations, threshold, method, shape, model)
     _needs_both_sides(estimate)
     interval = estimate.odds_interval(d)
     return [[interval.low, interval.high]]
 
 
-def planning_sigma2(threshold, shape, scale, method):
+def planning_sigma2(threshold, shape, scale, method, model=None):
     """σ² under guessed model parameters, from formula arguments."""
     name = cells.method_name(method, METHOD_NAMES)
     c = cells.positive(threshold, "threshold")
-    a = cells.positive(shape, "shape")
-    s = cells.positive(scale, "scale")
-    sigma2 = float(model_sigma2(name, c, a, s))
+    a, s, model_name = clean_shape_and_scale(shape, scale, model)
+    sigma2 = float(model_sigma2(name, c, a, s, model_name))
     if not 0 < sigma2 < float("inf"):
         raise cells.InputError("the guessed model puts (almost) every unit on one side of the threshold; "
                                "no finite number of units reaches this accuracy")
@@ -156,13 +200,13 @@ def unit_count(n_star) -> int:
 
 
 @formula(
-    threshold=HELP["threshold"], shape="Guessed gamma shape a > 0", scale="Guessed gamma scale s > 0, unit of the lifetimes",
-    accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
+    threshold=HELP["threshold"], shape="Guessed shape > 0 of the model", scale=f"Guessed {HELP['scale'][0].lower()}{HELP['scale'][1:]}",
+    accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"], model=HELP["model"],
 )
-def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None):
-    """Units a fixed-size test needs for the accuracy at the confidence, from guessed gamma parameters."""
+def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None, model=None):
+    """Units a fixed-size test needs for the accuracy at the confidence, from guessed model parameters."""
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
-    sigma2 = planning_sigma2(threshold, shape, scale, method)
+    sigma2 = planning_sigma2(threshold, shape, scale, method, model)
     return unit_count(_accuracy.units_for_accuracy(sigma2, d, level))
 
 
@@ -175,15 +219,16 @@ def UNITS_REQUIRED_FROM_P(p_guess, accuracy, confidence):
 
 
 @formula(
-    units=HELP["units"], threshold=HELP["threshold"], shape="Guessed gamma shape a > 0",
-    scale="Guessed gamma scale s > 0, unit of the lifetimes", confidence=HELP["confidence"], method=HELP["method"],
+    units=HELP["units"], threshold=HELP["threshold"], shape="Guessed shape > 0 of the model",
+    scale=f"Guessed {HELP['scale'][0].lower()}{HELP['scale'][1:]}", confidence=HELP["confidence"],
+    method=HELP["method"], model=HELP["model"],
 )
-def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None):
+def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None, model=None):
     """Accuracy factor d that a fixed-size test of this many units reaches at the confidence."""
     n = cells.whole_number(units, "units", minimum=1)
     level = cells.confidence(confidence)
     with np.errstate(over="ignore"):
-        d = float(_accuracy.accuracy_for_units(planning_sigma2(threshold, shape, scale, method), n, level))
+        d = float(_accuracy.accuracy_for_units(planning_sigma2(threshold, shape, scale, method, model), n, level))
     if not np.isfinite(d):
         raise cells.InputError("with so few units the accuracy factor is beyond any number; add units")
     return d
