@@ -21,12 +21,14 @@ from openpyxl.styles import Alignment, Border, Font, PatternFill, Side
 from openpyxl.workbook.defined_name import DefinedName
 from openpyxl.worksheet.datavalidation import DataValidation
 
-__all__ = ["LOG_SHEET", "OTHER_SHEET", "LOG_COLUMN", "LOG_HEADER", "styled_log", "lifetimes"]
+__all__ = ["LOG_SHEET", "OTHER_SHEET", "LOG_COLUMN", "LOG_HEADER", "TAIL_THRESHOLD", "SEVENTEEN_DIGITS", "styled_log",
+           "lifetimes"]
 
 LOG_SHEET = "Bench log"
 OTHER_SHEET = "Rig notes"
 LOG_COLUMN = "C"
 LOG_HEADER = "Hours to leak"
+TAIL_THRESHOLD = 900  # the threshold of the fixture's TAIL_PROB_EST cell (invented, like the log)
 # openpyxl writes floats with 16 significant digits; this placeholder is swapped for a
 # 17-digit number in the saved XML, so the book holds a number openpyxl cannot write back
 _PLACEHOLDER = "0.123456789"
@@ -60,7 +62,8 @@ def _dress(sheet, first_row, last_row):
     validation.add(f"{LOG_COLUMN}2:{LOG_COLUMN}500")
     sheet.add_data_validation(validation)
     sheet.conditional_formatting.add(f"{LOG_COLUMN}2:{LOG_COLUMN}500", CellIsRule(
-        operator="lessThan", formula=["100"], font=Font(color="FF9C0006"), fill=PatternFill("solid", bgColor="FFFFC7CE")))
+        operator="lessThan", formula=["100"], font=Font(color="FF9C0006"),
+        fill=PatternFill("solid", bgColor="FFFFC7CE")))
     sheet.conditional_formatting.add("A2:A500", FormulaRule(formula=["MOD(A2,10)=0"], font=Font(italic=True)))
     sheet["A2"].comment = Comment("first unit off the line", "bench lead")
     sheet["B3"].hyperlink = "https://example.invalid/rigs/3"
@@ -87,7 +90,7 @@ def styled_log(path, values=None, *, other_sheet_first=False):
     Sheet ``Bench log``: A unit, B rig (text), C lifetime (format ``0.0``,
     blue font), D a styled formula (=C*2, hidden column), E a remark; a
     merged title beside the log (G3:H4), a 17-digit number in a styled cell
-    (G6), a styled formula (G7). Sheet ``Rig notes`` carries the same
+    (G6), styled formulas (G7 ordinary, G9 a tailstop formula). Sheet ``Rig notes`` carries the same
     dressing, with its own merged range, styled formulas and 17-digit
     number. The book has a workbook-level and a sheet-level defined name.
     """
@@ -121,6 +124,9 @@ def styled_log(path, values=None, *, other_sheet_first=False):
     log["G7"].fill = PatternFill("solid", fgColor="FFFFF2CC")
     log["G8"] = dt.date(2026, 3, 2)
     log["G8"].number_format = "dd mmm yyyy"
+    log["G9"] = f'=TAIL_PROB_EST(C2:C{last},{TAIL_THRESHOLD},"pass-fail")'  # a tailstop formula, styled
+    log["G9"].number_format = "0.0000"
+    log["G9"].font = Font(name="Cambria", bold=True)
 
     other.append(["Rig", "Hours", LOG_HEADER, "Share"])
     for rig in range(1, 9):

@@ -20,6 +20,7 @@ PREFIX = "#TAILSTOP! "  # STYLE.md and RULES.md: every cell-visible error starts
 def assert_cell_text(result):
     assert isinstance(result, str), result
     assert result.startswith(PREFIX), result
+    # one line, no traceback, short enough to read in a cell (300 characters: common practice, no source)
     assert "\n" not in result and "Traceback" not in result and len(result) < 300, result
 
 

@@ -9,6 +9,7 @@ import math
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from tailstop.core import notes, operating
@@ -57,6 +58,12 @@ def test_method_planning_example():
     text = " ".join(page("method.md").split())
     assert "`PLAN_SUMMARY_FROM_P(0.9, 1.5, 0.95, 10)` gives n* = 260, E[N] = 261.2 and an exact coverage of 0.946" in text
     table = dict(PLAN_SUMMARY_FROM_P(0.9, 1.5, 0.95, 10))
+    # the quoted figures against the propagation written in the test (METHOD.md §5–6, not the package's rule)
+    from test_planning_independent import pass_fail_plan_by_hand
+
+    distribution, _, coverage = pass_fail_plan_by_hand(0.9, 1.5, 0.95, 10, 1500)
+    assert round(float(np.dot(np.arange(distribution.size), distribution) / distribution.sum()), 1) == 261.2
+    assert round(coverage, 3) == 0.946
     assert table["fixed-size units n*"] == 260
     assert round(table["expected units E[N]"], 1) == 261.2
     assert round(table["coverage"], 3) == 0.946
@@ -73,6 +80,8 @@ def test_getting_started_figures():
     text = page("getting-started.md")
     assert "=TAIL_PROB(1500, 2, 600)" in text and "returns 0.2873" in text
     assert round(TAIL_PROB(1500, 2, 600), 4) == 0.2873
+    # check value: the Erlang closed form Q(2, t) = e^{-t}(1 + t) at t = 2.5 (JKB vol. 1): 0.287297…
+    assert round(math.exp(-2.5) * 3.5, 4) == 0.2873
     assert "`=UNITS_REQUIRED(1500, 2, 600, 1.5, 0.95)`" in text and "(115)" in text
     assert UNITS_REQUIRED(1500, 2, 600, 1.5, 0.95) == 115
 

@@ -16,7 +16,7 @@ import openpyxl
 import pytest
 
 from book_contents import assert_nothing_lost, contents, differences
-from styled_books import LOG_COLUMN, LOG_HEADER, LOG_SHEET, OTHER_SHEET, SEVENTEEN_DIGITS, styled_log
+from styled_books import LOG_COLUMN, LOG_HEADER, LOG_SHEET, OTHER_SHEET, SEVENTEEN_DIGITS, TAIL_THRESHOLD, styled_log
 from tailstop.workbooks.annotate import annotate
 from tailstop.workbooks.log_layout import RulePlan
 from tailstop.workbooks.recalc import recalc
@@ -119,3 +119,6 @@ def test_recalc_loses_nothing_and_stores_the_values(original, tmp_path):
     assert shown[LOG_SHEET]["G7"].value == pytest.approx(sum(lifetimes) / len(lifetimes), rel=1e-12)
     assert shown[OTHER_SHEET]["D3"].value == pytest.approx(200.0 / sum(100.0 * k for k in range(1, 9)), rel=1e-12)
     assert shown[OTHER_SHEET]["F5"].value == len(lifetimes)
+    # check value: the pass-fail estimate is the share of units beyond the threshold, counted here
+    assert shown[LOG_SHEET]["G9"].value == pytest.approx(
+        sum(v > TAIL_THRESHOLD for v in lifetimes) / len(lifetimes), rel=1e-15)

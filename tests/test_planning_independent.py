@@ -56,7 +56,7 @@ def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every=1)
     (0.3, 1.5, 0.95, 7, 3),  # a rig that tests three units at a time
 ])
 def test_exact_pass_fail_plan_against_the_propagation_written_here(p, accuracy, confidence, pilot, check_every):
-    n_max = 600
+    n_max = 600  # several times n* for every plan here; what is left beyond it is compared too
     distribution, beyond, coverage = pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every)
     result = operating.pass_fail_exact(p, accuracy, confidence, pilot, n_max=n_max, check_every=check_every)
     # check value: the propagation above (METHOD.md §5–6 coded independently of the package)
@@ -118,7 +118,7 @@ def sigma2_known(shape, t):
 ])
 def test_known_shape_simulation_against_a_simulation_written_here(threshold, shape, scale, accuracy, confidence,
                                                                     pilot):
-    replications = 4000
+    replications = 4000  # coverage standard error about √(0.95·0.05/4000) = 0.0034 per simulation
     units, covered = known_shape_simulation_by_hand(threshold, shape, scale, accuracy, confidence, pilot,
                                                     replications, seed=11)
     result = operating.simulate(threshold, shape, scale, accuracy, confidence, pilot, "known-shape",

@@ -4,6 +4,12 @@ tests/test_variance.py checks the σ² functions at given (a, t); these check
 the number an estimate from a sample actually carries (``estimate_tail``,
 ``units_needed_now``, the formulas), computed here from the sample by hand
 (METHOD.md §3 and §5 written out in the test) or with mpmath.
+
+Tolerances (common practice, no published source): 1e-14 to 1e-15 where both
+sides are a few double operations apart; 1e-12 where a tail function of
+scipy enters; 1e-9 for the ML shape (the solver's stopping rule) and 1e-7 for
+the fitted-shape σ², whose shape derivative is a Richardson-extrapolated
+finite difference (accurate to about 1e-9, tests/test_variance.py).
 """
 from __future__ import annotations
 
