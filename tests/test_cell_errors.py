@@ -95,7 +95,7 @@ def core_failure(*args, **kwargs):
 
 
 @pytest.mark.parametrize("name, args, target", [
-    ("TAIL_PROB", (1000.0, 2.0, 600.0), "tailstop.sheet.estimate.tail_probability"),
+    ("TAIL_PROB", (1000.0, 2.0, 600.0), "tailstop.sheet.estimate.get_model"),
     ("TAIL_PROB_EST", ([[500.0], [1500.0], [900.0]], 1000.0), "tailstop.sheet.estimate.estimate_tail"),
     ("STOP_DECISION", ([[500.0], [1500.0], [900.0]], 1000.0, 1.5, 0.95, 2),
      "tailstop.sheet.decisions.decision_column"),
