@@ -7,23 +7,28 @@ from tailstop.core.methods import estimate_tail
 from tailstop.core.models.gamma.fit import fit_gamma
 
 
-def _censored_log(seed, shape, scale, n, share=0.3):
-    """Gamma lifetimes; a share of the units pulled at a uniform time before they fail."""
+DISTRIBUTIONS = {"gamma": stats.gamma, "weibull": stats.weibull_min, "lognormal": stats.lognorm}
+
+
+def _censored_log(seed, model, shape, scale, n, share=0.3):
+    """Lifetimes of the model; a share of the units pulled at a uniform time before they fail."""
     rng = np.random.default_rng(seed)
-    lifetimes = rng.gamma(shape, scale, n)
-    pulled = rng.uniform(0.0, 3.0 * shape * scale, n)
+    lifetimes = DISTRIBUTIONS[model].rvs(shape, scale=scale, size=n, random_state=rng)
+    pulled = rng.uniform(0.0, 3.0 * np.median(lifetimes), n)
     suspended = (rng.random(n) < share) & (pulled < lifetimes)
     return np.where(suspended, pulled, lifetimes), suspended
 
 
-def _negative_log_likelihood(times, suspended, shape, scale):
-    """Written for the test: density for each failure, survival function for each suspension."""
-    return -(stats.gamma.logpdf(times[~suspended], shape, scale=scale).sum()
-             + stats.gamma.logsf(times[suspended], shape, scale=scale).sum())
+def _negative_log_likelihood(model, times, suspended, shape, scale):
+    """Written for the test: density for each failure, survival function for each suspension (scipy.stats)."""
+    law = DISTRIBUTIONS[model]
+    return -(law.logpdf(times[~suspended], shape, scale=scale).sum()
+             + law.logsf(times[suspended], shape, scale=scale).sum())
 
 
-def _log_odds(threshold, shape, scale):
-    return stats.gamma.logsf(threshold, shape, scale=scale) - stats.gamma.logcdf(threshold, shape, scale=scale)
+def _log_odds(model, threshold, shape, scale):
+    law = DISTRIBUTIONS[model]
+    return law.logsf(threshold, shape, scale=scale) - law.logcdf(threshold, shape, scale=scale)
 
 
 def _hessian(function, point, step=1e-4):
@@ -38,46 +43,68 @@ def _hessian(function, point, step=1e-4):
     return hessian
 
 
-CASES = [(1, 0.7, 300.0, 150), (2, 2.5, 100.0, 200), (3, 6.0, 40.0, 120)]
+CASES = [("gamma", 1, 0.7, 300.0, 150), ("gamma", 2, 2.5, 100.0, 200), ("gamma", 3, 6.0, 40.0, 120),
+         ("weibull", 4, 0.8, 500.0, 150), ("weibull", 5, 3.0, 100.0, 200),
+         ("lognormal", 6, 0.4, 100.0, 150), ("lognormal", 7, 1.2, 300.0, 200)]
 
 
-@pytest.mark.parametrize("seed, shape, scale, n", CASES)
-def test_known_shape_against_a_numerical_maximisation(seed, shape, scale, n):
+@pytest.mark.parametrize("model, seed, shape, scale, n", CASES)
+def test_known_shape_against_a_numerical_maximisation(model, seed, shape, scale, n):
     # check value: scipy.optimize.minimize_scalar on the censored log-likelihood written above
-    times, suspended = _censored_log(seed, shape, scale, n)
-    threshold = 1.5 * shape * scale
-    estimate = estimate_tail(times, threshold, "known-shape", shape, survivors=suspended)
-    result = optimize.minimize_scalar(lambda u: _negative_log_likelihood(times, suspended, shape, np.exp(u)),
-                                      bracket=(np.log(scale) - 1, np.log(scale) + 1), tol=1e-12)
+    times, suspended = _censored_log(seed, model, shape, scale, n)
+    threshold = 1.5 * scale
+    estimate = estimate_tail(times, threshold, "known-shape", shape, survivors=suspended, model=model)
+    result = optimize.minimize_scalar(
+        lambda u: _negative_log_likelihood(model, times, suspended, shape, np.exp(u)),
+        bracket=(np.log(scale) - 1, np.log(scale) + 1), tol=1e-12)
     assert estimate.scale == pytest.approx(np.exp(result.x), rel=1e-7)
-    assert estimate.p == pytest.approx(np.exp(stats.gamma.logsf(threshold, shape, scale=np.exp(result.x))),
-                                       rel=1e-6)
+    law = DISTRIBUTIONS[model]
+    assert estimate.p == pytest.approx(law.sf(threshold, shape, scale=np.exp(result.x)), rel=1e-6)
     # σ² = n (d log q/du)² / J_uu, with J from finite differences of the same log-likelihood
-    information = _hessian(lambda v: _negative_log_likelihood(times, suspended, shape, np.exp(v[0])), [result.x])
-    slope = (_log_odds(threshold, shape, np.exp(result.x + 1e-5))
-             - _log_odds(threshold, shape, np.exp(result.x - 1e-5))) / 2e-5
+    information = _hessian(lambda v: _negative_log_likelihood(model, times, suspended, shape, np.exp(v[0])),
+                           [result.x])
+    slope = (_log_odds(model, threshold, shape, np.exp(result.x + 1e-5))
+             - _log_odds(model, threshold, shape, np.exp(result.x - 1e-5))) / 2e-5
     assert estimate.sigma2 == pytest.approx(n * slope ** 2 / information[0, 0], rel=1e-5)
 
 
-@pytest.mark.parametrize("seed, shape, scale, n", CASES)
-def test_fitted_shape_against_a_numerical_maximisation(seed, shape, scale, n):
-    # check value: scipy.optimize.minimize (Nelder-Mead) on the censored log-likelihood written above
-    times, suspended = _censored_log(seed, shape, scale, n)
-    threshold = 1.5 * shape * scale
-    estimate = estimate_tail(times, threshold, "fitted-shape", survivors=suspended)
+@pytest.mark.parametrize("model, seed, shape, scale, n", CASES)
+def test_fitted_shape_against_a_numerical_maximisation(model, seed, shape, scale, n):
+    # check value: scipy.optimize.minimize (Nelder-Mead) on the censored log-likelihood written above,
+    # and scipy.stats' own censored fit (CensoredData, floc=0) as a second reference
+    times, suspended = _censored_log(seed, model, shape, scale, n)
+    threshold = 1.5 * scale
+    estimate = estimate_tail(times, threshold, "fitted-shape", survivors=suspended, model=model)
 
     def objective(v):
-        return _negative_log_likelihood(times, suspended, np.exp(v[0]), np.exp(v[1]))
+        return _negative_log_likelihood(model, times, suspended, np.exp(v[0]), np.exp(v[1]))
 
     result = optimize.minimize(objective, [np.log(shape), np.log(scale)], method="Nelder-Mead",
                                options={"xatol": 1e-10, "fatol": 1e-12, "maxiter": 4000})
     best_shape, best_scale = np.exp(result.x)
     assert estimate.shape == pytest.approx(best_shape, rel=1e-5)
     assert estimate.scale == pytest.approx(best_scale, rel=1e-5)
+    data = stats.CensoredData(uncensored=times[~suspended], right=times[suspended])
+    scipy_shape, _, scipy_scale = DISTRIBUTIONS[model].fit(data, shape, floc=0, scale=scale)
+    assert estimate.shape == pytest.approx(scipy_shape, rel=1e-4)
+    assert estimate.scale == pytest.approx(scipy_scale, rel=1e-4)
     information = _hessian(objective, result.x)
-    gradient = np.array([(_log_odds(threshold, *np.exp(result.x + e)) - _log_odds(threshold, *np.exp(result.x - e)))
-                         / 2e-5 for e in np.eye(2) * 1e-5])
+    gradient = np.array([(_log_odds(model, threshold, *np.exp(result.x + e))
+                          - _log_odds(model, threshold, *np.exp(result.x - e))) / 2e-5 for e in np.eye(2) * 1e-5])
     assert estimate.sigma2 == pytest.approx(n * gradient @ np.linalg.solve(information, gradient), rel=1e-4)
+
+
+def test_weibull_known_shape_is_total_time_on_test_in_beta_powers_by_hand():
+    # check value: by hand. β = 2 known; units 100, 200+, 300, 400+: Σ t² = 300000 over r = 2 failures,
+    # θ̂ = η̂² = 150000. At c = 250, w = c²/θ̂ = 5/12 and p = e^{-w}; Var(log θ̂) = 1/r (X^β exponential),
+    # d log q / d log θ = w / (1 - p), so σ² = n w² / ((1 - p)² r)
+    times = np.array([100.0, 200.0, 300.0, 400.0])
+    suspended = np.array([False, True, False, True])
+    estimate = estimate_tail(times, 250.0, "known-shape", 2.0, survivors=suspended, model="weibull")
+    assert estimate.scale == pytest.approx(np.sqrt(150000.0), rel=1e-13)
+    w = 250.0 ** 2 / 150000.0
+    assert estimate.p == pytest.approx(np.exp(-w), rel=1e-13)
+    assert estimate.sigma2 == pytest.approx(4 * w ** 2 / ((1 - np.exp(-w)) ** 2 * 2), rel=1e-10)
 
 
 def test_exponential_scale_is_total_time_on_test_over_failures():

@@ -27,12 +27,14 @@ too high.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
 
+from .models import get_model
+from .models import censored_log_location as _log_location
 from .models.gamma import censored as _gamma_censored
 from .models.gamma.fit import shape_from_log_ratio
-from .models.gamma.tail import tail_probability_standard
 from .probability import TailProbability
 from .product_limit import product_limit, regularized_sigma2
 
@@ -42,8 +44,6 @@ __all__ = ["FAILURES_NEEDED", "CensoredEstimate", "censored_units", "is_censored
 # The fewest failures each method needs before it can estimate anything.
 FAILURES_NEEDED = {"pass-fail": 1, "known-shape": 1, "fitted-shape": 2}
 
-# The censored maximum likelihood of each model.
-_FITS = {"gamma": _gamma_censored}
 
 # Cells (check points × suspensions) handled at a time by the rule.
 _RULE_CELLS = 1 << 20
@@ -105,7 +105,9 @@ def censored_estimate(times, suspended, threshold, method, shape=None, model="ga
     threshold : float
     method : {'pass-fail', 'known-shape', 'fitted-shape'}
     shape : float, optional
-        The gamma shape, for known-shape.
+        The model's shape, for known-shape.
+    model : str
+        The lifetime model of known-shape and fitted-shape: gamma, weibull or lognormal.
 
     Raises
     ------
@@ -121,14 +123,15 @@ def censored_estimate(times, suspended, threshold, method, shape=None, model="ga
     failures = int((~flags).sum())
     if failures < FAILURES_NEEDED[method]:
         raise ValueError(failures_message(method, failures))
-    data = _prefix_data(x, flags, np.array([x.size]))
-    shape_value, log_scale, sigma2 = _model_fit(data, threshold, method, shape)
+    data = _prefix_data(x, flags, np.array([x.size]), model)
+    shape_value, log_scale, sigma2 = _model_fit(data, threshold, method, shape, model)
+    lifetime = get_model(model)
     if not (np.isfinite(log_scale[0]) and np.isfinite(sigma2[0])):
-        raise ValueError(f"{method}: the gamma likelihood of these failures and suspensions has no maximum "
-                         f"(found {failures} failures); test more units to failure")
+        raise ValueError(f"{method}: the {lifetime.title} likelihood of these failures and suspensions has no "
+                         f"maximum (found {failures} failures); test more units to failure")
     scale = float(np.exp(log_scale[0]))
     a = float(shape_value[0])
-    tail = tail_probability_standard(a, threshold / scale)
+    tail = lifetime.tail_standard(a, threshold / scale)
     return CensoredEstimate(method, int(x.size), _scalar_tail(tail), float(sigma2[0]), a, scale)
 
 
@@ -158,14 +161,22 @@ def _scalar_tail(tail):
 class _PrefixData:
     """Failures and suspensions of the first n units, for several n at once."""
 
-    def __init__(self, units, failures, log_ratio, suspension_times, suspension_weights):
+    def __init__(self, units, failures, log_ratio, suspension_times, suspension_weights, failure_times=None):
         self.units = units
         self.failures = failures           # (r, Σx, Σ log x) over the failures
         self.log_ratio = log_ratio         # log(mean) - mean(log) over the failures
         self.suspensions = (suspension_times, suspension_weights)
+        self.failure_times = failure_times  # (times, weights) of every failure, for the Weibull and lognormal
 
 
-def _prefix_data(x, flags, n):
+def _padded(times, counts):
+    """Each row the first ``counts[i]`` of ``times``, as (rows × most) times and 0/1 weights."""
+    width = int(counts.max()) if counts.size else 0
+    return (np.broadcast_to(times[:width], (counts.size, width)),
+            (np.arange(width) < counts[:, None]).astype(float))
+
+
+def _prefix_data(x, flags, n, model="gamma"):
     failed = ~flags
     failure_times = x[failed]
     r = np.cumsum(failed)[n - 1]
@@ -178,16 +189,17 @@ def _prefix_data(x, flags, n):
     log_total = r * np.log(reference) + logs
     with np.errstate(divide="ignore", invalid="ignore"):
         log_ratio = np.where(r > 0, np.maximum(np.log(scaled / count) - logs / count, 0.0), np.nan)
-    times = x[flags]
-    count = np.cumsum(flags)[n - 1]
-    width = int(count.max()) if count.size else 0
-    suspension_times = np.broadcast_to(times[:width], (n.size, width))
-    weights = (np.arange(width) < count[:, None]).astype(float)
-    return _PrefixData(n, (r.astype(float), total, log_total), log_ratio, suspension_times, weights)
+    suspension_times, weights = _padded(x[flags], np.cumsum(flags)[n - 1])
+    failure_matrix = _padded(failure_times, r) if model in _log_location.FAMILIES else None
+    return _PrefixData(n, (r.astype(float), total, log_total), log_ratio, suspension_times, weights, failure_matrix)
 
 
-def _model_fit(data, threshold, method, shape):
+def _model_fit(data, threshold, method, shape, model="gamma"):
     """(shape, log-scale, σ̂²) per prefix; NaN where the estimate does not exist."""
+    return _FITS[model](data, threshold, method, shape)
+
+
+def _gamma_fit(data, threshold, method, shape):
     fits = _gamma_censored
     failures, suspensions = data.failures, data.suspensions
     if method == "known-shape":
@@ -207,6 +219,29 @@ def _model_fit(data, threshold, method, shape):
     return shape_value, log_scale, np.where(ok, sigma2, np.nan)
 
 
+def _log_location_fit(data, threshold, method, shape, *, family):
+    fits = _log_location
+    failures = (np.log(data.failure_times[0]), data.failure_times[1])
+    suspensions = (np.log(data.suspensions[0]), data.suspensions[1])
+    with np.errstate(all="ignore"):
+        if method == "known-shape":
+            shape_value = np.full(data.units.shape, float(shape))
+            location = fits.fit_known_shape(family, failures, suspensions, shape_value)
+            sigma2 = fits.sigma2_known_shape(family, failures, suspensions, location, shape_value, threshold,
+                                             data.units)
+            return shape_value, location, sigma2
+        location, log_width = fits.fit_shape_and_scale(family, failures, suspensions)
+        ok = np.isfinite(location)
+        sigma2 = fits.sigma2_fitted_shape(family, failures, suspensions, np.where(ok, location, 0.0),
+                                          np.where(ok, log_width, 0.0), threshold, data.units)
+        return family.shape_from_width(np.exp(log_width)), location, np.where(ok, sigma2, np.nan)
+
+
+# The censored maximum likelihood of each model: gamma's own, and the log-location-scale one of the others.
+_FITS = {"gamma": _gamma_fit, **{name: partial(_log_location_fit, family=family)
+                                 for name, family in _log_location.FAMILIES.items()}}
+
+
 def _stop_condition(n, factor, sigma2):
     with np.errstate(invalid="ignore"):
         return (n >= factor * sigma2) & np.isfinite(sigma2)
@@ -224,9 +259,10 @@ class CensoredRule:
     continues while there are too few failures).
     """
 
-    def __init__(self, plain, method):
+    def __init__(self, plain, method, model="gamma"):
         self.plain = plain
         self.method = method
+        self.model = model
 
     def running_sums(self, x, threshold, survivors):
         censored = censored_units(x, survivors, threshold, self.method)
@@ -241,11 +277,12 @@ class CensoredRule:
         if self.method == "pass-fail":
             return regularized_sigma2(product_limit(x, flags, threshold, prefixes=n))
         out = np.empty(n.size)
-        width = max(1, int(flags[: n.max()].sum()))
+        width = max(1, int(n.max()) if self.model in _log_location.FAMILIES else int(flags[: n.max()].sum()))
         rows = max(1, _RULE_CELLS // width)
         for start in range(0, n.size, rows):
             part = n[start:start + rows]
-            out[start:start + rows] = _model_fit(_prefix_data(x, flags, part), threshold, self.method, shape)[2]
+            data = _prefix_data(x, flags, part, self.model)
+            out[start:start + rows] = _model_fit(data, threshold, self.method, shape, self.model)[2]
         return out
 
     def stops(self, sums, n, factor, threshold, shape):
