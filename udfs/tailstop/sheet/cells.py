@@ -355,7 +355,8 @@ def read_log_cells(values, name="observations", *, single_column=False) -> LogCe
     InputError
         Only if ``single_column`` is asked for and the range has several columns.
     """
-    rows = _rows_of(values)
+    blank_below = _blank_rows_at_end(values) if isinstance(values, list) else 0
+    rows = _rows_of(values[: len(values) - blank_below] if blank_below else values)
     lengths = set(map(len, rows))
     is_column = lengths <= {1}
     flat = list(map(itemgetter(0), rows)) if is_column else list(chain.from_iterable(rows))
@@ -382,8 +383,32 @@ def read_log_cells(values, name="observations", *, single_column=False) -> LogCe
         filled_rows = int(np.searchsorted(starts, filled - 1, side="right")) if filled else 0
         problem_row = None if bad_at is None else int(np.searchsorted(starts, bad_at, side="right") - 1)
     problem = None if bad_at is None else f"{name}: {_position(rows, bad_at, is_column)} {reason}"
-    return LogCells(numbers[units], survivors[units], unit_rows.astype(np.int64), unit_columns.astype(np.int64),
-                    len(rows), filled_rows, problem_row, problem, name, is_column)
+    return LogCells(numbers[units], survivors[units], unit_rows.astype(np.int64, copy=False),
+                    unit_columns.astype(np.int64, copy=False), len(rows) + blank_below, filled_rows, problem_row,
+                    problem, name, is_column)
+
+
+def _blank_rows_at_end(rows) -> int:
+    """How many rows at the end are a single blank cell (``[None]`` or ``[""]``), in C-level passes.
+
+    A whole-column reference passes a million rows, nearly all ``[None]``
+    below the log; they are left out before any row is looked at one by one.
+    Stretches at the end double while they are all blank, then halve down to
+    single rows, as in ``_trailing_blanks``.
+    """
+    end, step, growing = len(rows), 64, True
+    while end and step:
+        start = max(0, end - step)
+        part = rows[start:end]
+        blank = part.count([None])
+        if blank != end - start:
+            blank += part.count([""])
+        if blank == end - start:
+            end = start
+            step = step * 2 if growing else step
+        else:
+            growing, step = False, step // 2
+    return len(rows) - end
 
 
 def _is_blank(value) -> bool:

@@ -31,7 +31,7 @@ from ..core.rule import MIN_PILOT
 from ..core.sequential import decision_column, two_stage_plan, units_needed_now
 from . import cells
 from .estimate import HELP, clean_method_and_shape
-from .formula import formula
+from .formula import cell_column, formula
 
 # Larger whole numbers are refused as typing errors (a sheet column has 1,048,576 rows).
 _LARGEST_COUNT = 10**9
@@ -119,7 +119,7 @@ def STOP_DECISION_COLUMN(observations, threshold, accuracy, confidence, pilot, m
     column[log.rows] = _decisions(log, request, m, k).labels
     if log.problem is not None:
         column[log.problem_row:] = f"{cells.ERROR_PREFIX} {log.problem}"
-    return [[label] for label in column.tolist()]
+    return cell_column(column)
 
 
 def _units_so_far(values, request, name, subject) -> cells.LogCells:

@@ -11,7 +11,9 @@ registration and the VBA wrapper Excel would get.
 """
 from __future__ import annotations
 
+import contextlib
 import functools
+import gc
 import inspect
 import math
 from dataclasses import dataclass, field
@@ -24,7 +26,7 @@ except ImportError:  # LibreOffice's Python runs the formulas without xlwings
 
 from .cells import ERROR_PREFIX, InputError
 
-__all__ = ["FormulaSpec", "formula", "apply_xlwings", "FORMULAS", "CATEGORY"]
+__all__ = ["FormulaSpec", "formula", "apply_xlwings", "cell_column", "to_cells", "FORMULAS", "CATEGORY"]
 
 CATEGORY = "tailstop"
 
@@ -112,14 +114,30 @@ def formula(*, ranges=(), returns="number", **argument_help):
 
 
 def to_cells(result):
-    """numpy scalars and arrays to plain Python values a cell can hold."""
+    """numpy scalars and arrays to plain Python values a cell can hold.
+
+    A column built by ``cell_column`` is made of such values already and is
+    handed over as it is: it was checked once, as a whole, when it was built.
+    """
+    if type(result) is _CellColumn:
+        return list(result)
     if isinstance(result, str):
         return result
     if isinstance(result, np.ndarray):
-        result = result.tolist()
+        result = _array_values(result)
     if isinstance(result, (list, tuple)):
         return [to_cells(item) if isinstance(item, (list, tuple, np.ndarray)) else _cell_value(item) for item in result]
     return _cell_value(result)
+
+
+_NOT_FINITE = "the result is not a finite number for these inputs"
+
+
+def _array_values(array):
+    """``array.tolist()``, a float array checked for finite numbers at once rather than cell by cell."""
+    if array.dtype.kind == "f" and not np.isfinite(array).all():
+        raise ValueError(_NOT_FINITE)
+    return array.tolist()
 
 
 def _cell_value(value):
@@ -129,5 +147,64 @@ def _cell_value(value):
         return int(value)
     value = float(value)
     if not math.isfinite(value):
-        raise ValueError("the result is not a finite number for these inputs")
+        raise ValueError(_NOT_FINITE)
     return value
+
+
+class _CellColumn(list):
+    """Rows of one plain cell value each, made by ``cell_column``; ``to_cells`` takes it as it is."""
+
+
+def cell_column(values):
+    """The result of a formula that returns a column: one row per value.
+
+    The same rows as ``to_cells([[value] for value in values])``, made in one
+    numpy pass instead of cell by cell (a formula over a whole-column
+    reference returns up to 1,048,576 rows).
+
+    Parameters
+    ----------
+    values : ndarray, 1-D
+        Text (an object array holding only ``str``), numbers or booleans.
+
+    Raises
+    ------
+    ValueError
+        A number that is not finite, with the message ``to_cells`` gives.
+    TypeError
+        Values of any other kind.
+    """
+    values = np.asarray(values)
+    if values.ndim != 1:
+        raise TypeError("cell_column takes one value per row")
+    if values.dtype == object:
+        if not set(map(type, values.tolist())) <= {str}:
+            raise TypeError("cell_column takes text, numbers or booleans")
+    elif values.dtype.kind == "f":
+        if not np.isfinite(values).all():
+            raise ValueError(_NOT_FINITE)
+    elif values.dtype.kind not in "biuU":
+        raise TypeError(f"cell_column cannot take values of type {values.dtype}")
+    with _collector_paused():
+        return _CellColumn(values.reshape(-1, 1).tolist())
+
+
+@contextlib.contextmanager
+def _collector_paused():
+    """Make a million small lists without the cyclic garbage collector walking them.
+
+    None of them can be part of a reference cycle. With the collector running
+    it walks the new lists (and those of the input) several times while they
+    are made, and all of them once more soon after. ``freeze`` then
+    ``unfreeze`` moves every tracked object to the oldest generation in
+    constant time, so the new lists wait for the next full collection instead.
+    """
+    enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        gc.freeze()
+        gc.unfreeze()
+        if enabled:
+            gc.enable()
