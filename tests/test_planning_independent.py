@@ -166,3 +166,26 @@ def test_the_printed_plan_table_against_hand_computations(capsys):
     mean = float(np.dot(np.arange(distribution.size), distribution) / distribution.sum())
     assert rows["expected units E[N]"][0] == f"{mean:.4g}"
     assert rows["coverage"][0] == f"{coverage:.4g}"
+
+
+def test_the_simulated_planning_table_against_a_simulation_written_here():
+    from tailstop.sheet import PLAN_SUMMARY
+
+    threshold, shape, scale, accuracy, confidence, pilot, replications = 1000.0, 2.0, 600.0, 1.5, 0.95, 10, 4000
+    table = dict((label, value) for label, value in PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot,
+                                                                 "known-shape", replications, 12))
+    units, covered = known_shape_simulation_by_hand(threshold, shape, scale, accuracy, confidence, pilot,
+                                                    replications, seed=31)
+    # check value: the hand simulation; two independent simulations within 4 combined standard errors
+    mean_se = math.hypot(units.std(ddof=1) / math.sqrt(replications), table["expected units E[N]: MC std. error"])
+    assert table["expected units E[N]"] == pytest.approx(units.mean(), abs=4 * mean_se)
+    coverage_se = math.hypot(math.sqrt(covered.mean() * (1 - covered.mean()) / replications),
+                             table["coverage: MC std. error"])
+    assert table["coverage"] == pytest.approx(covered.mean(), abs=4 * coverage_se)
+    # METHOD.md §3–4 by hand at shape 2 (Erlang): n* = (z / log d)² f² / (a p² (1 - p)²)
+    t = threshold / scale
+    p, f = math.exp(-t) * (1 + t), t * t * math.exp(-t)
+    n_star = boundary(accuracy, confidence) * f * f / (2 * p * p * (1 - p) ** 2)
+    assert table["fixed-size units n*"] == math.ceil(n_star)
+    # the reported standard error is what 4000 runs give: sd / √R (within 10 %, the sd's own sampling error)
+    assert table["expected units E[N]: MC std. error"] == pytest.approx(units.std() / math.sqrt(replications), rel=0.1)
