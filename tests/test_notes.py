@@ -279,7 +279,7 @@ def test_without_accuracy_there_is_no_accuracy_note():
 def test_formula_is_registered_with_the_fixed_arguments():
     assert sheet.TAIL_METHOD_NOTES is TAIL_METHOD_NOTES
     spec = TAIL_METHOD_NOTES.tailstop_spec
-    assert list(spec.argument_help) == ["observations", "threshold", "method", "shape"]
+    assert list(spec.argument_help) == ["observations", "threshold", "method", "shape", "model"]
     assert spec.returns == "column" and spec.ranges == ("observations",)
 
 

@@ -7,18 +7,22 @@ for programs and tests, and one short line of ``text`` for people.
 
 Warnings, in the order they are listed:
 
-``gamma-fit-fails``
-    A gamma-based method (known-shape, fitted-shape) is used and the gamma
-    fit check (``fit.gamma_fit_pvalue``) gives p < 0.05. Points to pass-fail.
-``gamma-fit-skipped``
-    A gamma-based method on a log longer than the fit check handles
+``gamma-fit-fails`` (``weibull-fit-fails``, ``lognormal-fit-fails``)
+    A model-based method (known-shape, fitted-shape) is used and the fit
+    check of its model (``LifetimeModel.fit_pvalue``) gives p < 0.05.
+    Points to pass-fail.
+``gamma-fit-skipped`` (and the other models')
+    A model-based method on a log longer than the fit check handles
     (``fit.GOF_VALUE_BUDGET``): the check is not run, and the note says so.
-``gamma-fit-impossible``
+``gamma-fit-impossible`` (and the other models')
     known-shape on a log whose lifetimes are all equal: the fit check cannot
-    run, and equal lifetimes are not what a gamma model produces.
+    run, and equal lifetimes are not what a lifetime model produces.
 ``shape-disagrees``
     known-shape, and a likelihood-ratio test of "shape = the given shape"
-    against a freely fitted shape rejects at the 5 % level.
+    against a freely fitted shape of the same model rejects at the 5 % level.
+``other-model-fits-better``
+    A model-based method, and another of the three models has an AIC lower
+    by 4 or more (``models.compare.CLEARLY_BETTER``) on the same complete log.
 ``one-side-only``
     pass-fail with every unit on the same side of the threshold: there is no
     estimate with bounds yet, and the stopping rule cannot stop.
@@ -50,8 +54,10 @@ import numpy as np
 from scipy import special, stats
 
 from .methods import METHOD_NAMES, SufficientStatistics, estimate_tail
-from .models.gamma.fit import gamma_fit_pvalue, shape_from_log_ratio
+from .models.gamma.fit import shape_from_log_ratio
 from .censored import NOT_YET_CODES, censoring_notes
+from .models import DEFAULT_MODEL, get_model
+from .models.compare import better_model, fit_model
 from .sequential import units_needed_now
 
 __all__ = [
@@ -132,7 +138,7 @@ def shape_likelihood_ratio(values, shape) -> ShapeTest:
 
 
 def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=None, confidence=None,
-                 survivors=None) -> list:
+                 survivors=None, model=DEFAULT_MODEL) -> list:
     """The warnings that apply to estimating P(X > threshold) from ``values`` by ``method``.
 
     Parameters
@@ -143,13 +149,17 @@ def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=Non
         The threshold c > 0.
     method : {'pass-fail', 'known-shape', 'fitted-shape'}
     shape : float, optional
-        The given gamma shape (known-shape only).
+        The given shape of the model (known-shape only).
     accuracy, confidence : float, optional
         The requested accuracy factor d > 1 and confidence; give both to get
         the ``accuracy-needs-more`` check, or neither to skip it.
     survivors : array_like of bool, optional
         pass-fail only: units taken off test at or beyond the threshold
         without failing; they count as beyond it.
+    model : str
+        The lifetime model of known-shape and fitted-shape (gamma, weibull,
+        lognormal): its own fit check, its own shape test, and a note when
+        another model fits clearly better by AIC.
 
     Returns
     -------
@@ -169,16 +179,19 @@ def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=Non
     censoring = [Note(*item) for item in censoring_notes(x, survivors, threshold, method)]
     if any(note.code in NOT_YET_CODES for note in censoring):
         return censoring  # nothing to estimate yet; the rule continues
-    estimate_tail(x, threshold, method, shape, survivors)  # validates, and fails where the estimate does
+    lifetime = get_model(model)
+    estimate_tail(x, threshold, method, shape, survivors, model=lifetime.name)  # validates, and fails where the estimate does
     notes = []
     if method in GAMMA_METHODS:
-        notes += _fit_notes(x) if not censoring else [_fit_skipped(censoring[-1].figures)]
+        notes += _fit_notes(x, lifetime) if not censoring else [_fit_skipped(censoring[-1].figures, lifetime)]
     if method == "known-shape" and not censoring:
-        notes += _shape_notes(x, shape)
-    notes += _side_notes(x.size, *_sides(x, threshold, survivors), method)
+        notes += _shape_notes(x, shape, lifetime)
+    if method in GAMMA_METHODS and not censoring:
+        notes += _better_model_notes(x, lifetime)
+    notes += _side_notes(x.size, *_sides(x, threshold, survivors), method, lifetime)
     notes += censoring
     if check_accuracy:
-        notes += _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors)
+        notes += _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors, lifetime)
     return notes
 
 
@@ -187,26 +200,60 @@ def note_lines(notes) -> list:
     return [note.text for note in notes] or [NO_NOTES_TEXT]
 
 
-def _fit_notes(x):
+def _fit_notes(x, lifetime):
+    name = lifetime.name
     if not float(SufficientStatistics.of(x, np.inf).log_ratio) > _EQUAL_LIFETIMES:
-        return [Note("gamma-fit-impossible",
-                     "gamma fit check cannot run: all lifetimes are equal; use pass-fail")]
+        return [Note(f"{name}-fit-impossible",
+                     f"{name} fit check cannot run: all lifetimes are equal; use pass-fail")]
     try:
-        pvalue = gamma_fit_pvalue(x)
+        pvalue = lifetime.fit_pvalue(x)
     except ValueError as reason:
-        return [Note("gamma-fit-skipped", f"gamma fit check not run: {reason}")]
+        return [Note(f"{name}-fit-skipped", f"{name} fit check not run: {reason}")]
     if pvalue >= FIT_LEVEL:
         return []
-    return [Note("gamma-fit-fails",
-                 f"gamma fit check fails (p = {pvalue:.3g} < {FIT_LEVEL:g}): the gamma model is doubtful "
-                 "for this log; use pass-fail",
+    return [Note(f"{name}-fit-fails",
+                 f"{name} fit check fails (p = {pvalue:.3g} < {FIT_LEVEL:g}): the {lifetime.title} model is "
+                 "doubtful for this log; use pass-fail",
                  {"pvalue": pvalue})]
 
 
-def _shape_notes(x, shape):
+def _better_model_notes(x, lifetime):
+    """A note when another model's AIC is lower by CLEARLY_BETTER or more (complete data only)."""
+    if not float(SufficientStatistics.of(x, np.inf).log_ratio) > _EQUAL_LIFETIMES:
+        return []
+    better = better_model(x, lifetime.name)
+    if better is None:
+        return []
+    mine = fit_model(x, lifetime.name)
+    gap = mine.aic - better.aic
+    return [Note("other-model-fits-better",
+                 f"the {get_model(better.model).title} model fits this log clearly better than the "
+                 f"{lifetime.title} model (AIC lower by {gap:.3g}); compare them with FIT_COMPARE",
+                 {"better": better.model, "aic_gap": gap})]
+
+
+def model_shape_likelihood_ratio(values, shape, model) -> ShapeTest:
+    """Test H0: shape = ``shape`` (scale free) against a free shape, for any model (Wilks' theorem, 1 df).
+
+    The statistic is 2 (log L(fitted shape, scale) - log L(shape, ML scale at that shape)).
+    """
+    lifetime = get_model(model)
+    if lifetime.name == DEFAULT_MODEL:
+        return shape_likelihood_ratio(values, shape)
+    x = np.asarray(values, dtype=float).ravel()
+    fitted = fit_model(x, lifetime.name)
+    statistics = SufficientStatistics.of(x, np.inf, model=lifetime.name, method="known-shape", shape=shape)
+    scale = float(lifetime.scale_for_shape(statistics, float(shape)))
+    restricted = float(np.sum(lifetime.log_pdf(x, float(shape), scale)))
+    statistic = max(0.0, 2.0 * (fitted.log_likelihood - restricted))
+    return ShapeTest(given=float(shape), fitted=fitted.shape, statistic=statistic,
+                     pvalue=float(stats.chi2.sf(statistic, 1)))
+
+
+def _shape_notes(x, shape, lifetime):
     if not float(SufficientStatistics.of(x, np.inf).log_ratio) > _EQUAL_LIFETIMES:
         return []  # already said by gamma-fit-impossible
-    test = shape_likelihood_ratio(x, shape)
+    test = model_shape_likelihood_ratio(x, shape, lifetime.name)
     if test.pvalue >= SHAPE_LEVEL:
         return []
     return [Note("shape-disagrees",
@@ -221,12 +268,12 @@ def _sides(x, threshold, survivors):
     return int(np.sum((x > threshold) | (flags & (x >= threshold)))), int(np.sum(~flags & (x <= threshold)))
 
 
-def _fit_skipped(figures):
-    return Note("gamma-fit-skipped", f"gamma fit check not run: it needs every unit's failure time "
+def _fit_skipped(figures, lifetime):
+    return Note(f"{lifetime.name}-fit-skipped", f"{lifetime.name} fit check not run: it needs every unit's failure time "
                                      f"({figures['suspended']} units are suspended)", figures)
 
 
-def _side_notes(n, beyond, below, method):
+def _side_notes(n, beyond, below, method, lifetime):
     figures = {"units": n, "beyond": beyond, "below": below}
     if method == "pass-fail" and (beyond == 0 or below == 0):
         side = "outlasted" if below == 0 else "failed at or before"
@@ -240,7 +287,7 @@ def _side_notes(n, beyond, below, method):
     else:
         count = f"{below} of {n} units failed at or before the threshold"
     consequence = ("the bounds are unreliable at such counts" if method == "pass-fail"
-                   else "the estimate rests on the gamma model, not on observed units")
+                   else f"the estimate rests on the {lifetime.title} model, not on observed units")
     return [Note("few-on-a-side", f"{count} (fewer than {MIN_PER_SIDE}): {consequence}", figures)]
 
 
@@ -257,10 +304,11 @@ def _check_requested_accuracy(accuracy, confidence):
     return True
 
 
-def _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors):
+def _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors, lifetime):
     n = int(x.size)
     try:
-        plan = units_needed_now(x, threshold, accuracy, confidence, method, shape, survivors=survivors)
+        plan = units_needed_now(x, threshold, accuracy, confidence, method, shape, survivors=survivors,
+                                model=lifetime.name)
     except ValueError:
         return []  # pass-fail with every unit on one side: the one-side-only note already says the rule cannot stop
     wanted = f"odds within a factor {accuracy:g} at {confidence * 100:g} % confidence"

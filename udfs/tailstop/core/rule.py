@@ -23,6 +23,7 @@ import numpy as np
 
 from .accuracy import critical_value
 from .methods import estimate_from_statistics
+from .models import DEFAULT_MODEL
 
 __all__ = ["MIN_PILOT", "rule_sigma2", "boundary_factor", "is_check_point", "stops"]
 
@@ -36,12 +37,12 @@ def regularized_pass_fail_sigma2(n, exceedances):
     return 1.0 / (p_tilde * (1.0 - p_tilde))
 
 
-def rule_sigma2(statistics, threshold, method, shape=None):
+def rule_sigma2(statistics, threshold, method, shape=None, model=DEFAULT_MODEL):
     """σ̂²_n as the stopping rule uses it, for every set of statistics (NaN = undefined)."""
     if method == "pass-fail":
         return regularized_pass_fail_sigma2(statistics.n, statistics.exceedances)
     with np.errstate(all="ignore"):
-        return np.asarray(estimate_from_statistics(statistics, threshold, method, shape).sigma2, dtype=float)
+        return np.asarray(estimate_from_statistics(statistics, threshold, method, shape, model).sigma2, dtype=float)
 
 
 def boundary_factor(accuracy, confidence):
@@ -55,13 +56,14 @@ def is_check_point(n, pilot, check_every=1):
     return (n >= pilot) & ((n - pilot) % check_every == 0)
 
 
-def stops(statistics, threshold, accuracy, confidence, pilot, method, shape=None, check_every=1):
+def stops(statistics, threshold, accuracy, confidence, pilot, method, shape=None, check_every=1,
+          model=DEFAULT_MODEL):
     """Boolean array: does the rule say STOP at each set of statistics (each prefix)?
 
     This is the stop condition at each n on its own; the decision column is
     STOP at the first True and PAST STOP after it.
     """
-    sigma2 = rule_sigma2(statistics, threshold, method, shape)
+    sigma2 = rule_sigma2(statistics, threshold, method, shape, model)
     n = np.asarray(statistics.n)
     with np.errstate(invalid="ignore"):
         enough = n >= boundary_factor(accuracy, confidence) * sigma2

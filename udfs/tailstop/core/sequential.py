@@ -47,6 +47,7 @@ import numpy as np
 
 from .censored import CensoredRule, is_censored
 from .methods import METHOD_NAMES, SufficientStatistics
+from .models import DEFAULT_MODEL, get_model
 from .models.gamma.fit import shape_from_log_ratio
 from .models.gamma.tail import log_density_term, tail_probability_standard
 from .models.gamma.variance import sigma2_fitted_shape, sigma2_known_shape
@@ -175,7 +176,7 @@ class TwoStagePlan:
 
 
 def decision_column(lifetimes, threshold, accuracy, confidence, pilot, method="pass-fail", shape=None, *,
-                    survivors=None, check_every=1) -> DecisionColumn:
+                    survivors=None, check_every=1, model=DEFAULT_MODEL) -> DecisionColumn:
     """The stop/continue decision after every unit of a test log, in O(n).
 
     Parameters
@@ -219,7 +220,7 @@ def decision_column(lifetimes, threshold, accuracy, confidence, pilot, method="p
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
     factor = _check_plan(accuracy, confidence, pilot, check_every)
     pilot, check_every = int(pilot), int(check_every)
-    stop = _first_stop(x, flags, threshold, factor, pilot, method, shape, check_every)
+    stop = _first_stop(x, flags, threshold, factor, pilot, method, shape, check_every, model)
     states = np.full(x.size, CONTINUE, dtype=np.int8)
     states[: min(pilot - 1, x.size)] = PILOT
     if stop is not None:
@@ -229,7 +230,7 @@ def decision_column(lifetimes, threshold, accuracy, confidence, pilot, method="p
 
 
 def stopping_units(lifetimes, threshold, accuracy, confidence, pilot, method="pass-fail", shape=None, *,
-                   survivors=None, check_every=1) -> int | None:
+                   survivors=None, check_every=1, model=DEFAULT_MODEL) -> int | None:
     """N, the number of units at which the rule stops on this log; None if it has not stopped.
 
     Same arguments as ``decision_column``; cheaper when only N is wanted
@@ -237,11 +238,11 @@ def stopping_units(lifetimes, threshold, accuracy, confidence, pilot, method="pa
     """
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
     factor = _check_plan(accuracy, confidence, pilot, check_every)
-    return _first_stop(x, flags, threshold, factor, int(pilot), method, shape, int(check_every))
+    return _first_stop(x, flags, threshold, factor, int(pilot), method, shape, int(check_every), model)
 
 
 def units_needed_now(lifetimes, threshold, accuracy, confidence, method="pass-fail", shape=None, *,
-                     survivors=None) -> UnitsNeeded:
+                     survivors=None, model=DEFAULT_MODEL) -> UnitsNeeded:
     """The current plug-in unit count (z / log d)² σ̂²_n from all n units so far.
 
     σ̂²_n is the one the stopping rule uses, computed from the same running
@@ -257,12 +258,12 @@ def units_needed_now(lifetimes, threshold, accuracy, confidence, method="pass-fa
     """
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
     factor = _check_plan(accuracy, confidence, MIN_PILOT, 1)
-    sigma2 = _current_sigma2(x, flags, threshold, method, shape)
+    sigma2 = _current_sigma2(x, flags, threshold, method, shape, model)
     return UnitsNeeded(units=int(x.size), sigma2=sigma2, needed=factor * sigma2)
 
 
 def two_stage_plan(pilot_lifetimes, threshold, accuracy, confidence, method="pass-fail", shape=None, *,
-                   survivors=None) -> TwoStagePlan:
+                   survivors=None, model=DEFAULT_MODEL) -> TwoStagePlan:
     """The two-stage plan: after a pilot of m units, test up to max(m, ceil((z/log d)² σ̂²_m)) in all.
 
     The same σ̂² as the sequential rule, from the pilot only; undefined (a
@@ -277,7 +278,7 @@ def two_stage_plan(pilot_lifetimes, threshold, accuracy, confidence, method="pas
     """
     x, flags = _check_log(pilot_lifetimes, threshold, method, shape, survivors)
     factor = _check_plan(accuracy, confidence, MIN_PILOT, 1)
-    sigma2 = _current_sigma2(x, flags, threshold, method, shape)
+    sigma2 = _current_sigma2(x, flags, threshold, method, shape, model)
     total = max(int(x.size), int(math.ceil(factor * sigma2)))
     return TwoStagePlan(pilot_units=int(x.size), sigma2=sigma2, total_units=total)
 
@@ -322,12 +323,12 @@ def _check_log(lifetimes, threshold, method, shape, survivors):
 # --------------------------------------------------------------------------- the first stop
 
 
-def _first_stop(x, survivors, threshold, factor, pilot, method, shape, check_every):
+def _first_stop(x, survivors, threshold, factor, pilot, method, shape, check_every, model=DEFAULT_MODEL):
     """The first check point at which the rule stops, or None; chunk by chunk."""
     check_points = np.arange(int(pilot), x.size + 1, int(check_every))
     if check_points.size == 0:
         return None
-    evaluator = _evaluator(x, survivors, threshold, method)
+    evaluator = _evaluator(x, survivors, threshold, method, model)
     sums = evaluator.running_sums(x, threshold, survivors)
     start, size = 0, _FIRST_CHUNK
     while start < check_points.size:
@@ -340,11 +341,11 @@ def _first_stop(x, survivors, threshold, factor, pilot, method, shape, check_eve
     return None
 
 
-def _current_sigma2(x, survivors, threshold, method, shape):
+def _current_sigma2(x, survivors, threshold, method, shape, model=DEFAULT_MODEL):
     """σ̂²_n from all n units, exactly as the rule computes it at n; ValueError where undefined."""
     if x.size < MIN_PILOT:
         raise ValueError(f"at least {MIN_PILOT} units are needed (got {x.size})")
-    evaluator = _evaluator(x, survivors, threshold, method)
+    evaluator = _evaluator(x, survivors, threshold, method, model)
     sums = evaluator.running_sums(x, threshold, survivors)
     return evaluator.current_sigma2(sums, x.size, threshold, shape)
 
@@ -491,8 +492,66 @@ _EVALUATORS = {"pass-fail": _PassFail, "known-shape": _KnownShape, "fitted-shape
 
 
 
-def _evaluator(x, survivors, threshold, method):
-    """The method's evaluator; the censored one when the log has a suspension the method must censor."""
+def _evaluator(x, survivors, threshold, method, model=DEFAULT_MODEL):
+    """The method's evaluator; the censored one when the log has a suspension the method must censor;
+    for the Weibull and lognormal models the parametric methods' ``_ModelRule``."""
+    name = get_model(model).name
     if is_censored(x, survivors, threshold, method):
+        if name != DEFAULT_MODEL:
+            raise ValueError(f"suspended units (marked +) work with the {DEFAULT_MODEL} model and pass-fail; "
+                             f"not yet with {name} {method}")
         return CensoredRule(_EVALUATORS[method], method)
+    if name != DEFAULT_MODEL and method != "pass-fail":
+        return _ModelRule(name, method)
     return _EVALUATORS[method]
+
+
+class _ModelRule:
+    """σ̂² of every prefix from the model's running statistics (Weibull, lognormal).
+
+    The statistics of the first L units are computed once for L = 4,096,
+    then 65,536, then the whole log, as the check points reach them: a log
+    that stops early costs little, one that never stops costs about one
+    pass (for the Weibull fitted shape, ``weibull.running_fit``).
+    """
+
+    _LIMITS = (1 << 12, 1 << 16)
+
+    def __init__(self, model, method):
+        self.model, self.method = model, method
+        self.limit, self.sigma2 = 0, np.empty(0)
+
+    def running_sums(self, x, threshold, survivors):
+        return x
+
+    def _sigma2_up_to(self, x, last, threshold, shape):
+        if last > self.limit:
+            limit = next((size for size in self._LIMITS if size >= last), x.size)
+            limit = min(x.size, max(limit, last))
+            self.limit, self.sigma2 = limit, self._prefix_sigma2(x[:limit], threshold, shape)
+        return self.sigma2
+
+    def _prefix_sigma2(self, x, threshold, shape):
+        """σ̂² of every prefix as ``methods`` computes it, from the model's statistics only."""
+        model = get_model(self.model)
+        statistics = SufficientStatistics(
+            n=np.arange(1, x.size + 1), sum_x=None, log_ratio=None, exceedances=None,
+            model_statistics=model.statistics(x, self.method, shape, running=True))
+        with np.errstate(all="ignore"):
+            if self.method == "known-shape":
+                return model.sigma2_known_shape(shape, threshold / model.scale_for_shape(statistics, shape))
+            fitted = model.fitted_shape(statistics)
+            valid = np.isfinite(fitted)
+            safe = np.where(valid, fitted, 1.0)
+            sigma2 = model.sigma2_fitted_shape(safe, threshold / model.fitted_scale(statistics, safe))
+        return np.where(valid, sigma2, np.nan)
+
+    def stops(self, x, n, factor, threshold, shape):
+        return _enough(n, factor, self._sigma2_up_to(x, int(n[-1]), threshold, shape)[n - 1])
+
+    def current_sigma2(self, x, n, threshold, shape):
+        sigma2 = float(self._sigma2_up_to(x, n, threshold, shape)[n - 1])
+        if not np.isfinite(sigma2):
+            raise ValueError(f"all lifetimes are equal: the {get_model(self.model).title} shape cannot be "
+                             "estimated yet")
+        return sigma2

@@ -56,12 +56,13 @@ class _Request:
     confidence: float
     method: str
     shape: float | None
+    model: str
 
 
-def _request(threshold, accuracy, confidence, method, shape) -> _Request:
-    name, shape_value, _ = clean_method_and_shape(method, shape)
+def _request(threshold, accuracy, confidence, method, shape, model=None) -> _Request:
+    name, shape_value, model_name = clean_method_and_shape(method, shape, model)
     return _Request(cells.positive(threshold, "threshold"), cells.accuracy(accuracy), cells.confidence(confidence),
-                    name, shape_value)
+                    name, shape_value, model_name)
 
 
 def _pilot(value) -> int:
@@ -85,20 +86,22 @@ def _survivors(log):
 
 def _decisions(log, request, pilot, check_every):
     return decision_column(log.values, request.threshold, request.accuracy, request.confidence, pilot,
-                           request.method, request.shape, survivors=_survivors(log), check_every=check_every)
+                           request.method, request.shape, survivors=_survivors(log), check_every=check_every,
+                           model=request.model)
 
 
 _DECISION_HELP = dict(
     observations=HELP_DECISIONS["observations"], threshold=HELP["threshold"], accuracy=HELP["accuracy"],
     confidence=HELP["confidence"], pilot=HELP_DECISIONS["pilot"], method=HELP["method"],
-    shape=HELP["known_shape"], check_every=HELP_DECISIONS["check_every"],
+    shape=HELP["known_shape"], check_every=HELP_DECISIONS["check_every"], model=HELP["model"],
 )
 
 
 @formula(ranges=("observations",), returns="text", **_DECISION_HELP)
-def STOP_DECISION(observations, threshold, accuracy, confidence, pilot, method=None, shape=None, check_every=None):
+def STOP_DECISION(observations, threshold, accuracy, confidence, pilot, method=None, shape=None, check_every=None,
+                  model=None):
     """Decision after the last row of the range: PILOT, CONTINUE, STOP or PAST STOP (empty on a blank row)."""
-    request = _request(threshold, accuracy, confidence, method, shape)
+    request = _request(threshold, accuracy, confidence, method, shape, model)
     m, k = _pilot(pilot), _check_every(check_every)
     log = _read_log(observations, request, single_column=True)
     if log.problem is not None:
@@ -110,9 +113,9 @@ def STOP_DECISION(observations, threshold, accuracy, confidence, pilot, method=N
 
 @formula(ranges=("observations",), returns="column", **_DECISION_HELP)
 def STOP_DECISION_COLUMN(observations, threshold, accuracy, confidence, pilot, method=None, shape=None,
-                         check_every=None):
+                         check_every=None, model=None):
     """Decisions for every row of the log at once, a column to its last filled row: the same as STOP_DECISION filled down."""
-    request = _request(threshold, accuracy, confidence, method, shape)
+    request = _request(threshold, accuracy, confidence, method, shape, model)
     m, k = _pilot(pilot), _check_every(check_every)
     log = _read_log(observations, request, single_column=True)
     column = np.full(max(log.filled_rows, 1), "", dtype=object)
@@ -135,24 +138,24 @@ def _units_so_far(values, request, name, subject) -> cells.LogCells:
 @formula(
     ranges=("observations",), observations=HELP_DECISIONS["units_so_far"],
     threshold=HELP["threshold"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
-    shape=HELP["known_shape"],
+    shape=HELP["known_shape"], model=HELP["model"],
 )
-def UNITS_NEEDED_NOW(observations, threshold, accuracy, confidence, method=None, shape=None):
+def UNITS_NEEDED_NOW(observations, threshold, accuracy, confidence, method=None, shape=None, model=None):
     """Units the accuracy needs by the current estimate, (z/log d)^2 times the variance from all units so far, rounded up."""
-    request = _request(threshold, accuracy, confidence, method, shape)
+    request = _request(threshold, accuracy, confidence, method, shape, model)
     log = _units_so_far(observations, request, "observations", "needs")
     return units_needed_now(log.values, request.threshold, request.accuracy, request.confidence, request.method,
-                            request.shape, survivors=_survivors(log)).whole
+                            request.shape, survivors=_survivors(log), model=request.model).whole
 
 
 @formula(
     ranges=("pilot_observations",), pilot_observations=HELP_DECISIONS["pilot_observations"],
     threshold=HELP["threshold"], accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"],
-    shape=HELP["known_shape"],
+    shape=HELP["known_shape"], model=HELP["model"],
 )
-def TWO_STAGE_UNITS(pilot_observations, threshold, accuracy, confidence, method=None, shape=None):
+def TWO_STAGE_UNITS(pilot_observations, threshold, accuracy, confidence, method=None, shape=None, model=None):
     """Total units to test in a two-stage plan (pilot included), from the pilot's results."""
-    request = _request(threshold, accuracy, confidence, method, shape)
+    request = _request(threshold, accuracy, confidence, method, shape, model)
     log = _units_so_far(pilot_observations, request, "pilot_observations", "the pilot needs")
     return two_stage_plan(log.values, request.threshold, request.accuracy, request.confidence, request.method,
-                          request.shape, survivors=_survivors(log)).total_units
+                          request.shape, survivors=_survivors(log), model=request.model).total_units

@@ -20,10 +20,10 @@ from .formula import formula
 
 @formula(
     ranges=("observations",), returns="column", observations=HELP["observations"], threshold=HELP["threshold"],
-    method=HELP["method"], shape=HELP["known_shape"],
+    method=HELP["method"], shape=HELP["known_shape"], model=HELP["model"],
 )
-def TAIL_METHOD_NOTES(observations, threshold, method=None, shape=None):
+def TAIL_METHOD_NOTES(observations, threshold, method=None, shape=None, model=None):
     """Warnings that apply to the estimate from this log and method, one line each (a column)."""
-    log = clean_log_arguments(observations, threshold, method, shape)
-    notes = method_notes(log.values, log.threshold, log.method, log.shape, survivors=log.survivors)
+    log = clean_log_arguments(observations, threshold, method, shape, model)
+    notes = method_notes(log.values, log.threshold, log.method, log.shape, survivors=log.survivors, model=log.model)
     return [[line] for line in note_lines(notes)]

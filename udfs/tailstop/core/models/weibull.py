@@ -355,7 +355,7 @@ def statistics(observations, method, shape=None, *, running=False) -> WeibullSta
         tilted = float(shape) * log_x
         if running:
             count = np.arange(1, x.shape[-1] + 1)
-            known = (np.logaddexp.accumulate(tilted, axis=-1) - np.log(count)) / float(shape)
+            known = (_running_log_sum(tilted) - np.log(count)) / float(shape)
         else:
             known = np.asarray(log_scale_for_shape(log_x.reshape(1, -1), float(shape))[0])
     elif method == "fitted-shape":
@@ -369,6 +369,23 @@ def statistics(observations, method, shape=None, *, running=False) -> WeibullSta
             fitted_scale = np.asarray(log_scale_for_shape(log_x.reshape(1, -1), fitted)[0]
                                       if np.isfinite(fitted) else np.nan)
     return WeibullStatistics(known, fitted, fitted_scale)
+
+
+def _running_log_sum(values, chunk=1 << 16):
+    """log Σ_{i<=n} e^{v_i} for every n along the last axis, in chunks, each scaled by its running maximum."""
+    values = np.asarray(values, dtype=float)
+    out = np.empty_like(values)
+    shift = np.full(values.shape[:-1] + (1,), -np.inf)
+    carried = np.zeros(values.shape[:-1] + (1,))
+    for start in range(0, values.shape[-1], chunk):
+        part = values[..., start:start + chunk]
+        new_shift = np.maximum(shift, part.max(axis=-1, keepdims=True))
+        with np.errstate(invalid="ignore"):
+            carried = carried * np.exp(np.where(np.isfinite(shift), shift - new_shift, 0.0))
+        sums = np.cumsum(np.exp(part - new_shift), axis=-1) + carried
+        out[..., start:start + chunk] = np.log(sums) + new_shift
+        shift, carried = new_shift, sums[..., -1:]
+    return out
 
 
 def _scale_for_shape(sufficient, shape):
