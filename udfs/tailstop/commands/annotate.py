@@ -7,17 +7,8 @@ from __future__ import annotations
 import functools
 import sys
 
-from openpyxl.utils.cell import get_column_letter
-
-from ..sheet import cells
-from ..workbooks.annotate import AnnotateRefused, AnnotateResult, annotate
-from ..workbooks.log_layout import (
-    DECISION_HEADER,
-    LogProblem,
-    RulePlan,
-    sheet_reference,
-)
-from ..workbooks.package import WorkbookRefused
+# the workbook tools (openpyxl, numpy, the core) are imported where they are used:
+# `tailstop annotate --help` needs none of them
 
 __all__ = ["HELP", "add_arguments", "run", "summary"]
 
@@ -59,6 +50,11 @@ def _usage_error(parser, message):
 
 
 def run(args, out=None, err=None):
+    from ..sheet import cells
+    from ..workbooks.annotate import AnnotateRefused, annotate
+    from ..workbooks.log_layout import LogProblem, RulePlan
+    from ..workbooks.package import WorkbookRefused
+
     out, err = out or sys.stdout, err or sys.stderr
     try:
         if args.no_backup and not args.in_place:
@@ -83,8 +79,12 @@ def _cli_text(problem):
     return text.replace("accept the loss (allow_lossy)", "accept the loss with --allow-lossy")
 
 
-def summary(result: AnnotateResult) -> str:
-    """The lines ``tailstop annotate`` prints."""
+def summary(result) -> str:
+    """The lines ``tailstop annotate`` prints for an ``AnnotateResult``."""
+    from openpyxl.utils.cell import get_column_letter
+
+    from ..workbooks.log_layout import DECISION_HEADER, sheet_reference
+
     analysis, log = result.analysis, result.log
     figures = analysis.figures
     lines = [f"Annotated {log.text()} ({analysis.units} units) -> {result.path}"]

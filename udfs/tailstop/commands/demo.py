@@ -10,8 +10,6 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from ..workbooks import scenario
-
 __all__ = ["DEFAULT_FOLDER", "add_arguments", "run", "summary"]
 
 DEFAULT_FOLDER = "workbooks_demo"
@@ -41,6 +39,7 @@ def _number(value, digits=4):
 
 def summary(result) -> str:
     """What ``tailstop demo`` prints: units tested, the decision row, the estimate, the warnings, the plan."""
+    from ..workbooks import scenario
     from ..workbooks.demo_books import notes_text
 
     analysis, log = result.analysis, result.log

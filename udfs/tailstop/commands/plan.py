@@ -11,11 +11,7 @@ import math
 import sys
 import time
 
-import numpy as np
-from scipy import special
-
-from ..core import operating
-from ..core.models.gamma.tail import tail_probability
+# numpy, scipy and the core are imported where they are used: `tailstop plan --help` needs none of them
 
 __all__ = ["ProgressBar", "add_arguments", "run"]
 
@@ -65,7 +61,8 @@ def add_arguments(parser):
     parser.add_argument("--replications", type=int, default=10_000, help="simulated runs for known-shape (default 10,000)")
     parser.add_argument("--fitted-replications", type=int, default=10_000,
                         help="simulated runs for fitted-shape (default 10,000)")
-    parser.add_argument("--seed", type=int, default=operating.DEFAULT_SEED, help="seed of the simulation")
+    parser.add_argument("--seed", type=int, help="seed of the simulation (default: the fixed seed of every "
+                                                 "tailstop simulation, so that runs repeat)")
     parser.add_argument("--calibrate", action="store_true",
                         help="also find the smallest critical value that reaches the nominal coverage")
     parser.add_argument("--png", metavar="FILE", help="write a plot of the distribution of N and of coverage "
@@ -74,7 +71,11 @@ def add_arguments(parser):
 
 
 def run(args, out=None, progress_stream=None):
+    from ..core import operating
+
     out = out or sys.stdout
+    if args.seed is None:
+        args.seed = operating.DEFAULT_SEED
     if args.png:
         _require_matplotlib()
     plan = (args.threshold, args.shape, args.scale, args.accuracy, args.confidence, args.pilot)
@@ -115,6 +116,8 @@ def _aligned(rows):
 
 
 def _evaluator(plan, method, counts, seed):
+    from ..core import operating
+
     if method == "pass-fail":
         return lambda z: operating.operating_characteristics(*plan, method, stop_z=z)
     return lambda z: operating.operating_characteristics(*plan, method, replications=counts[method], seed=seed,
@@ -122,6 +125,8 @@ def _evaluator(plan, method, counts, seed):
 
 
 def _calibration_table(plan, counts, seed, progress_stream):
+    from ..core import operating
+
     methods = ("pass-fail", "known-shape", "fitted-shape")
     rows = [["calibrated critical value", *methods]]
     found = {}
@@ -169,11 +174,18 @@ def _require_matplotlib():
 
 def _scale_for(probability, threshold, shape):
     """The gamma scale that gives P(X > threshold) = probability at this shape."""
+    from scipy import special
+
     return threshold / special.gammainccinv(shape, probability)
 
 
 def _coverage_curves(plan, counts, seed, progress):
     """Coverage against the true probability (odds of the guess × 1/3 .. 3), shape held at the guess."""
+    import numpy as np
+
+    from ..core import operating
+    from ..core.models.gamma.tail import tail_probability
+
     threshold, shape, scale, accuracy, confidence, pilot = plan
     p_guess = float(tail_probability(threshold, shape, scale).p)
     odds = p_guess / (1 - p_guess)
@@ -201,6 +213,7 @@ def _coverage_curves(plan, counts, seed, progress):
 
 
 def _plot(path, plan, comparison, counts, seed, progress_stream):
+    import numpy as np
     from matplotlib.figure import Figure
     from matplotlib.ticker import FuncFormatter
 
