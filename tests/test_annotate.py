@@ -266,6 +266,35 @@ def test_blank_rows_and_survivors(tmp_path):
     assert result.analysis.units_used == stop
 
 
+@pytest.mark.parametrize("live", [False, True])
+def test_suspended_units_in_a_gamma_method_and_the_counts_in_the_block(tmp_path, live):
+    lifetimes = bench_lifetimes(160)
+    for row in range(3, 160, 7):  # every seventh unit pulled early, at 60 % of its life
+        lifetimes[row] = f"{round(0.6 * lifetimes[row], 1)}+"
+    path = rich_log(tmp_path / "pulled.xlsx", lifetimes)
+    result = annotate(path, column="D", plan=plan(method="known-shape", shape=2.4), live=live,
+                      out=tmp_path / "annotated.xlsx")
+    sheet = openpyxl.load_workbook(result.path, data_only=True)[LOG_SHEET]
+    block = {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 40)}
+    used = block["Units used, N"]
+    suspended = sum(isinstance(v, str) for v in lifetimes[:used])
+    assert block["  of which suspended (marked +)"] == suspended > 0
+    assert block["  of which failed"] == used - suspended
+    # the block's estimate is the censored known-shape estimate of the units used
+    times = [float(str(v).rstrip("+")) for v in lifetimes[:used]]
+    flags = [isinstance(v, str) for v in lifetimes[:used]]
+    from tailstop.core.methods import estimate_tail
+    expected = estimate_tail(times, THRESHOLD, "known-shape", 2.4, survivors=flags).p
+    assert block["Estimate of p = P(life > threshold)"] == pytest.approx(expected, rel=1e-12)
+    if live:
+        computed = evaluate_workbook(result.path)
+        for row in range(11, 25):
+            stored = sheet.cell(row, 13).value
+            engine = computed.get((LOG_SHEET.upper(), f"M{row}"))
+            if isinstance(stored, float):
+                assert engine == pytest.approx(stored, rel=1e-12), row
+
+
 # --------------------------------------------------------------------------- command line and refusals
 
 
@@ -285,6 +314,7 @@ def test_command_line_prints_a_summary(log_path, capsys):
     assert f"Annotated 'Bench log'!D2:D{len(bench_lifetimes()) + 1}" in out
     assert "decision: STOP at row" in out
     assert "estimate: P(life > 1500) =" in out
+    assert "failed, 0 suspended)" in out
     assert "kept their values and formulas" in out
 
 

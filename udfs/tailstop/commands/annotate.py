@@ -95,6 +95,9 @@ def summary(result) -> str:
     else:
         lines.append(f"  decision: {analysis.last_decision or 'CONTINUE'} - the rule has not stopped after "
                      f"{analysis.units} units; the estimate below uses them all and the accuracy is not reached yet")
+    suspended = analysis.suspended_used
+    lines.append(f"  units used: {analysis.units_used} ({analysis.units_used - suspended} failed, {suspended} "
+                 f"suspended)")
     lines.append(f"  estimate: P(life > {analysis.plan.threshold:g}) = {_figure(figures['estimate'])}, "
                  f"bounds {_figure(figures['p_low'])} .. {_figure(figures['p_high'])}; odds "
                  f"{_figure(figures['odds'])} ({_figure(figures['odds_low'])} .. {_figure(figures['odds_high'])})")

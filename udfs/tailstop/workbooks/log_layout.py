@@ -257,6 +257,8 @@ class LogAnalysis:
     filled_used : int
         Non-empty cells in the rows used (what COUNTA counts; equals ``units_used``
         unless a cell holds only spaces).
+    suspended_used : int
+        Units among them marked suspended (``1200+``); the others failed.
     last_decision : str
         STOP_DECISION over the whole log.
     figures : dict
@@ -279,6 +281,7 @@ class LogAnalysis:
     figures: dict
     notes: list
     live_notes: list = field(default_factory=list)
+    suspended_used: int = 0
 
     @property
     def stopped(self) -> bool:
@@ -327,7 +330,7 @@ def _analyse(log, values, plan):
     live_notes = [_index(live, line, 1) for line in range(1, LIVE_NOTE_LINES + 1)]
     filled = sum(1 for value in values[:rows_used] if value is not None and value != "")
     return LogAnalysis(plan, decisions, stop_offset, rows_used, int(reading.values.size), units_used, filled,
-                       last_decision, figures, notes, live_notes)
+                       last_decision, figures, notes, live_notes, int(reading.survivors[:units_used].sum()))
 
 
 def _refuse_bad_cells(log, column, plan):
@@ -379,6 +382,8 @@ _OUTPUTS = (
     ("last_decision", "Decision after the last row", None),
     ("rows_used", "Log rows used (down to the STOP)", "0"),
     ("units_used", "Units used, N", "0"),
+    ("failures", "  of which failed", "0"),
+    ("suspended", "  of which suspended (marked +)", "0"),
     ("estimate", "Estimate of p = P(life > threshold)", PROBABILITY_FORMAT),
     ("p_low", "p, lower bound", PROBABILITY_FORMAT),
     ("p_high", "p, upper bound", PROBABILITY_FORMAT),
@@ -456,6 +461,9 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
         "last_decision": f"=STOP_DECISION({whole},{rule})",
         "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),ROWS({whole}))',
         "units_used": f"=COUNTA({used})",
+        # a failure is a number, a suspended unit the text 1200+
+        "failures": f"=COUNT({used})",
+        "suspended": f"={a('units_used')}-{a('failures')}",
         "estimate": f"=TAIL_PROB_EST({used},{a('threshold')},{method_args})",
         "p_low": f'=IFERROR(INDEX(TAIL_PROB_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,1),"")',
         "p_high": f'=IFERROR(INDEX(TAIL_PROB_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,2),"")',
@@ -472,6 +480,8 @@ def _output_values(analysis: LogAnalysis, live: bool):
     values["last_decision"] = analysis.last_decision
     values["rows_used"] = analysis.rows_used
     values["units_used"] = analysis.filled_used if live else analysis.units_used
+    values["failures"] = analysis.units_used - analysis.suspended_used
+    values["suspended"] = values["units_used"] - values["failures"]
     return values
 
 
