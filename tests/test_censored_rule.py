@@ -20,28 +20,32 @@ def _log(seed, n=400, share=0.2):
     return np.where(suspended, pulled, lifetimes), suspended
 
 
-def _rule_sigma2(times, suspended, method, shape):
+def _rule_sigma2(times, suspended, method, shape, model="gamma"):
     """σ̂² of the first n units as the rule should use it, one prefix at a time (written for the test)."""
     if method == "pass-fail":
         return float(regularized_sigma2(product_limit(times, suspended, THRESHOLD)))
     try:
-        return estimate_tail(times, THRESHOLD, method, shape, survivors=suspended).sigma2
+        return estimate_tail(times, THRESHOLD, method, shape, survivors=suspended, model=model).sigma2
     except ValueError:
         return np.nan
 
 
-@pytest.mark.parametrize("method, shape", METHODS)
+MODEL_METHODS = METHODS + [("known-shape", 1.5, "weibull"), ("fitted-shape", None, "weibull"),
+                           ("known-shape", 0.7, "lognormal"), ("fitted-shape", None, "lognormal")]
+
+
+@pytest.mark.parametrize("method, shape, model", [m if len(m) == 3 else m + ("gamma",) for m in MODEL_METHODS])
 @pytest.mark.parametrize("seed", [1, 2])
-def test_the_column_stops_where_each_prefix_alone_says_stop(method, shape, seed):
+def test_the_column_stops_where_each_prefix_alone_says_stop(method, shape, model, seed):
     # property: the vectorized column equals the rule applied to each prefix on its own
     times, suspended = _log(seed)
     factor = boundary_factor(1.4, 0.9)
-    column = decision_column(times, THRESHOLD, 1.4, 0.9, 10, method, shape, survivors=suspended)
+    column = decision_column(times, THRESHOLD, 1.4, 0.9, 10, method, shape, survivors=suspended, model=model)
     first = None
     for n in range(10, times.size + 1):
         if not suspended[:n].any() or (method == "pass-fail" and not (suspended[:n] & (times[:n] < THRESHOLD)).any()):
             continue  # before the first censored unit the complete-log rule applies (tested elsewhere)
-        sigma2 = _rule_sigma2(times[:n], suspended[:n], method, shape)
+        sigma2 = _rule_sigma2(times[:n], suspended[:n], method, shape, model)
         if np.isfinite(sigma2) and n >= factor * sigma2:
             first = n
             break
@@ -49,12 +53,13 @@ def test_the_column_stops_where_each_prefix_alone_says_stop(method, shape, seed)
     assert column.stop_units == first
 
 
-@pytest.mark.parametrize("method, shape", METHODS)
-def test_prefixes_before_the_first_suspension_decide_as_a_complete_log(method, shape):
+@pytest.mark.parametrize("method, shape, model", [m if len(m) == 3 else m + ("gamma",) for m in MODEL_METHODS])
+def test_prefixes_before_the_first_suspension_decide_as_a_complete_log(method, shape, model):
     times, suspended = _log(3)
     first = int(np.argmax(suspended))
-    with_suspensions = decision_column(times, THRESHOLD, 1.3, 0.9, 5, method, shape, survivors=suspended)
-    complete = decision_column(times[:first], THRESHOLD, 1.3, 0.9, 5, method, shape)
+    with_suspensions = decision_column(times, THRESHOLD, 1.3, 0.9, 5, method, shape, survivors=suspended,
+                                       model=model)
+    complete = decision_column(times[:first], THRESHOLD, 1.3, 0.9, 5, method, shape, model=model)
     assert np.array_equal(with_suspensions.states[:first], complete.states)
 
 

@@ -496,14 +496,10 @@ def _evaluator(x, survivors, threshold, method, model=DEFAULT_MODEL):
     """The method's evaluator; the censored one when the log has a suspension the method must censor;
     for the Weibull and lognormal models the parametric methods' ``_ModelRule``."""
     name = get_model(model).name
+    plain = _ModelRule(name, method) if name != DEFAULT_MODEL and method != "pass-fail" else _EVALUATORS[method]
     if is_censored(x, survivors, threshold, method):
-        if name != DEFAULT_MODEL:
-            raise ValueError(f"suspended units (marked +) work with the {DEFAULT_MODEL} model and pass-fail; "
-                             f"not yet with {name} {method}")
-        return CensoredRule(_EVALUATORS[method], method)
-    if name != DEFAULT_MODEL and method != "pass-fail":
-        return _ModelRule(name, method)
-    return _EVALUATORS[method]
+        return CensoredRule(plain, method, name)
+    return plain
 
 
 class _ModelRule:
