@@ -71,3 +71,29 @@ def test_recalc_for_a_program_writes_its_spelling(tmp_path, target, prefix):
     assert sheet["D1"].value.text == f"={prefix}TAIL_PROB_BOUNDS(A1:A4,300,2)"
     values = openpyxl.load_workbook(out, data_only=True)["Log"]
     assert math.isclose(values["C1"].value, ERLANG, rel_tol=1e-12)
+
+
+def test_annotate_keeps_a_libreoffice_book_and_recalc_spells_its_live_column_for_libreoffice(tmp_path):
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Log"
+    sheet.append(["Unit", "Hours", "P so far"])
+    for unit, hours in enumerate([310.0, 720.0, "1500+", 150.0, 980.0, 420.0, 1330.0, 260.0], start=1):
+        sheet.append([unit, hours, f"=TAILSTOP.TAIL_PROB_EST($B$2:B{unit + 1},500)"])
+    book.save(tmp_path / "log.xlsx")
+    annotated = tmp_path / "log-live.xlsx"
+    assert main(["annotate", str(tmp_path / "log.xlsx"), "--column", "B", "--threshold", "500", "--accuracy", "2",
+                 "--pilot", "4", "--live", "--out", str(annotated)]) == 0
+    kept = openpyxl.load_workbook(annotated)["Log"]
+    assert kept["C9"].value == "=TAILSTOP.TAIL_PROB_EST($B$2:B9,500)"
+    live = [cell.value for cell in kept["D"] if isinstance(cell.value, str) and cell.value.startswith("=")]
+    assert live and all("TAILSTOP." not in text for text in live)  # annotate writes Excel's spelling
+
+    assert main(["recalc", str(annotated), "--for", "libreoffice", "--out", str(tmp_path / "calc.xlsx")]) == 0
+    written = openpyxl.load_workbook(tmp_path / "calc.xlsx")["Log"]
+    respelled = [cell.value for cell in written["D"] if isinstance(cell.value, str) and cell.value.startswith("=")]
+    assert respelled == [respell(text, "libreoffice") for text in live]
+    assert all(text.startswith("=TAILSTOP.STOP_DECISION(") for text in respelled)
+    values = openpyxl.load_workbook(tmp_path / "calc.xlsx", data_only=True)["Log"]
+    # check value: the pass-fail estimate is the plain share beyond 500 (common practice): 4 of 8
+    assert values["C9"].value == 0.5
