@@ -1,11 +1,13 @@
 """Build ``tailstop.oxt``, the LibreOffice extension, from the formula specs.
 
 Everything LibreOffice needs is derived from ``tailstop.sheet.FORMULAS``: the
-type library declares one method per formula (ranges as ``[][]any``, other
-arguments and single results as ``any``, array results as ``[][]any``), the
-component serves each formula's summary and argument help to the Function
-Wizard, and the formulas run from a copy of the package in ``pythonpath/``.
-A new formula therefore needs no work here.
+type library declares one method per formula (see ``method_signature``),
+``formulas.json`` carries every name, summary and argument help text, the
+component (``calc_component.py``) serves them to the Function Wizard, and the
+formulas run from a copy of the package in ``pythonpath/``. A new formula
+therefore needs no work here. No ``CalcAddIns.xcu`` is written: Calc reads an
+add-in's texts from the add-in object itself and skips configuration entries
+for functions it already knows that way.
 """
 from __future__ import annotations
 
@@ -28,6 +30,10 @@ EXTENSION_ID = "tailstop.calc"
 COMPONENT_FILE = "tailstop_calc.py"
 TYPE_LIBRARY = "tailstop.rdb"
 INTERFACE = "tailstop.XFormulas"
+IMPLEMENTATION = "tailstop.calc.Formulas"
+# Calc stores a formula as SERVICE.FUNCTION in .xlsx, upper-cased: TAILSTOP.TAIL_PROB
+SERVICE = "tailstop"
+ADDIN_SERVICE = "com.sun.star.sheet.AddIn"
 GRID_RESULTS = ("row", "column", "table")
 # The layers a formula needs at run time (the workbook tools and the command line stay out).
 BUNDLED = ("__init__.py", "core", "sheet")
@@ -55,7 +61,8 @@ def catalogue() -> dict:
             "optional": _optional(function),
             "returns": spec.returns,
         })
-    return {"category": CATEGORY, "version": __version__, "formulas": entries}
+    return {"category": CATEGORY, "version": __version__, "interface": INTERFACE, "implementation": IMPLEMENTATION,
+            "services": [ADDIN_SERVICE, SERVICE], "grid_results": list(GRID_RESULTS), "formulas": entries}
 
 
 def method_signature(function) -> typelib.Method:
@@ -90,9 +97,8 @@ def _components() -> str:
     return ('<?xml version="1.0" encoding="UTF-8"?>\n'
             '<components xmlns="http://openoffice.org/2010/uno-components">\n'
             f' <component loader="com.sun.star.loader.Python" uri="{COMPONENT_FILE}">\n'
-            '  <implementation name="tailstop.calc.Formulas">\n'
-            '   <service name="com.sun.star.sheet.AddIn"/>\n'
-            '   <service name="tailstop"/>\n'
+            f'  <implementation name="{IMPLEMENTATION}">\n'
+            + "".join(f'   <service name="{service}"/>\n' for service in (ADDIN_SERVICE, SERVICE)) +
             '  </implementation>\n'
             ' </component>\n'
             '</components>\n')

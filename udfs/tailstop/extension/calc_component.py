@@ -22,17 +22,14 @@ try:  # absent when the file is imported outside LibreOffice, e.g. by tests
 except ImportError:  # pragma: no cover - depends on the interpreter
     uno = unohelper = None
 
-IMPLEMENTATION_NAME = "tailstop.calc.Formulas"
-SERVICE_NAME = "tailstop"
-ADDIN_SERVICE = "com.sun.star.sheet.AddIn"
-INTERFACE_NAME = "tailstop.XFormulas"
 ERROR_PREFIX = "#TAILSTOP!"
-GRID_RESULTS = ("row", "column", "table")
 
 _HERE = os.path.dirname(os.path.abspath(__file__))
 with open(os.path.join(_HERE, "formulas.json"), encoding="utf-8") as _file:
-    CATALOGUE = json.load(_file)
+    CATALOGUE = json.load(_file)  # written by tailstop/extension/build.py, the one source of these names
 SPECS = {spec["name"]: spec for spec in CATALOGUE["formulas"]}
+SERVICES = tuple(CATALOGUE["services"])  # com.sun.star.sheet.AddIn, then the add-in's own service name
+GRID_RESULTS = tuple(CATALOGUE["grid_results"])
 
 _formulas = None
 _problem = None
@@ -42,6 +39,7 @@ def formulas():
     """name -> the cell-safe formula, imported on first use; None when the import failed."""
     global _formulas, _problem
     if _formulas is None and _problem is None:
+        _bundled_package_first()
         try:
             from tailstop.sheet import FORMULAS
             _formulas = dict(FORMULAS)
@@ -50,6 +48,14 @@ def formulas():
         except Exception as failure:  # noqa: BLE001 - it must reach the cell as text
             _problem = f"{ERROR_PREFIX} the add-in could not start ({type(failure).__name__}: {failure})"
     return _formulas
+
+
+def _bundled_package_first():
+    """Put the bundled copy of tailstop before any other on sys.path (LibreOffice appends it last)."""
+    bundled = os.path.join(_HERE, "pythonpath")
+    if bundled in sys.path:
+        sys.path.remove(bundled)
+    sys.path.insert(0, bundled)
 
 
 def import_problem(missing):
@@ -120,7 +126,7 @@ def create_addin(context):
     from com.sun.star.lang import Locale, XLocalizable, XServiceInfo, XServiceName
     from com.sun.star.sheet import XAddIn
 
-    interface = uno.getClass(INTERFACE_NAME)
+    interface = uno.getClass(CATALOGUE["interface"])
 
     class Formulas(unohelper.Base, XAddIn, XServiceName, XServiceInfo, XLocalizable, interface):
         def __init__(self, ctx):
@@ -151,19 +157,19 @@ def create_addin(context):
         def getDisplayCategoryName(self, name):
             return CATALOGUE["category"]
 
-        # XServiceName: Calc stores a formula as SERVICE_NAME.FUNCTION in .xlsx
+        # XServiceName: Calc stores a formula as SERVICE.FUNCTION in .xlsx
         def getServiceName(self):
-            return SERVICE_NAME
+            return SERVICES[-1]
 
         # XServiceInfo
         def getImplementationName(self):
-            return IMPLEMENTATION_NAME
+            return CATALOGUE["implementation"]
 
         def supportsService(self, name):
-            return name in (ADDIN_SERVICE, SERVICE_NAME)
+            return name in SERVICES
 
         def getSupportedServiceNames(self):
-            return (ADDIN_SERVICE, SERVICE_NAME)
+            return SERVICES
 
         # XLocalizable
         def setLocale(self, locale):
@@ -179,4 +185,4 @@ def create_addin(context):
 
 if unohelper is not None:
     g_ImplementationHelper = unohelper.ImplementationHelper()
-    g_ImplementationHelper.addImplementation(create_addin, IMPLEMENTATION_NAME, (ADDIN_SERVICE, SERVICE_NAME))
+    g_ImplementationHelper.addImplementation(create_addin, CATALOGUE["implementation"], SERVICES)
