@@ -13,7 +13,10 @@ from __future__ import annotations
 import inspect
 import json
 import math
+import os
+import shutil
 import subprocess
+import tempfile
 import zipfile
 from pathlib import Path
 
@@ -25,7 +28,7 @@ from openpyxl.worksheet.formula import ArrayFormula
 from libreoffice import in_ci
 from tailstop.commands import main
 from tailstop.extension.build import build_extension
-from tailstop.extension.libreoffice import LibreOfficeError, Sandbox, find_program, office_environment
+from tailstop.extension.libreoffice import LibreOfficeError, Sandbox, find_program, is_root, office_environment
 from tailstop.sheet import FORMULAS
 
 SESSION_SCRIPT = Path(__file__).with_name("libreoffice_session.py")
@@ -246,3 +249,38 @@ def test_calc_stores_the_programmatic_name_and_refuses_the_short_one(session):
     assert values["A1"].value == "#NAME?"
     # check value: Erlang identity Q(2, t) = e^{-t} (1 + t), t = 2.5
     assert math.isclose(values["A2"].value, math.exp(-2.5) * 3.5, rel_tol=1e-14)
+
+
+def test_install_for_an_ordinary_user_with_no_profile_yet(office, tmp_path_factory):
+    """`tailstop extension install` run by a user who never started LibreOffice, then Calc computes with it."""
+    if not is_root() or shutil.which("setpriv") is None:
+        pytest.skip("needs root and setpriv to act as an ordinary user (CI has both)")
+    import tailstop
+
+    home = Path(tempfile.mkdtemp(prefix="tailstop-user-"))  # under /tmp, so the user can reach it
+    try:
+        shutil.copytree(Path(tailstop.__file__).parent, home / "udfs" / "tailstop",
+                        ignore=shutil.ignore_patterns("__pycache__"))
+        book = openpyxl.Workbook()
+        book.active["A1"] = "=TAILSTOP.TAIL_PROB(1000, 2, 400)"
+        book.save(home / "book.xlsx")
+        (home / "out").mkdir()
+        subprocess.run(["chown", "-R", "nobody", str(home)], check=True)
+        os.chmod(home, 0o755)
+        as_user = ["setpriv", "--reuid=nobody", "--regid=nogroup", "--clear-groups", "env", f"HOME={home}",
+                   "PATH=/usr/local/bin:/usr/bin:/bin", f"PYTHONPATH={home / 'udfs'}"]
+        # the verb alone: LibreOffice's Python has numpy and scipy but not the workbook tools' openpyxl
+        verb = ("import argparse, sys; from tailstop.commands import extension; parser = argparse.ArgumentParser(); "
+                "extension.add_arguments(parser); sys.exit(extension.run(parser.parse_args(['install'])))")
+        installed = subprocess.run([*as_user, office["python"], "-c", verb],
+                                   capture_output=True, text=True, timeout=300, cwd=home)
+        assert installed.returncode == 0, installed.stderr[-2000:]
+        assert "installed tailstop.oxt for this user" in installed.stdout
+        subprocess.run([*as_user, office["soffice"], "--headless", "--norestore", "--convert-to", "xlsx",
+                        "--outdir", str(home / "out"), str(home / "book.xlsx")],
+                       capture_output=True, timeout=300, cwd=home, check=True)
+        value = openpyxl.load_workbook(home / "out" / "book.xlsx", data_only=True).active["A1"].value
+        # check value: Erlang identity Q(2, t) = e^{-t} (1 + t), t = 2.5
+        assert math.isclose(value, math.exp(-2.5) * 3.5, rel_tol=1e-14)
+    finally:
+        shutil.rmtree(home, ignore_errors=True)

@@ -168,6 +168,11 @@ def user_install(oxt, shared=False):
         raise LibreOfficeError("unopkg refuses to install into root's own profile. Run "
                                "`tailstop extension install` as the user who runs LibreOffice, or "
                                "`tailstop extension install --shared` to install it for every user")
+    if not shared:
+        # LibreOffice's first start on a profile drops the extensions unopkg registered there before it,
+        # so let it create the profile first (a no-op when the profile exists)
+        run_bounded([find_program("soffice"), "--headless", "--norestore", "--terminate_after_init"],
+                    "starting LibreOffice once to create your profile")
     command = [find_program("unopkg"), "add", "--force", "--suppress-license"]
     if shared:
         command.insert(2, "--shared")
