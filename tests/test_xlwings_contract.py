@@ -56,7 +56,8 @@ DOCUMENTED = {
                              "[check_every]", "[model]"],
     "UNITS_NEEDED_NOW": ["observations", "threshold", "accuracy", "confidence", "[method]", "[shape]", "[model]"],
     "TWO_STAGE_UNITS": ["pilot_observations", "threshold", "accuracy", "confidence", "[method]", "[shape]", "[model]"],
-    **{name: ["threshold", "shape", "scale", "accuracy", "confidence", "pilot", "[method]", "[replications]", "[seed]"]
+    **{name: ["threshold", "shape", "scale", "accuracy", "confidence", "pilot", "[method]", "[replications]", "[seed]",
+              "[model]"]
        for name in ("PLAN_EXPECTED_UNITS", "PLAN_COVERAGE", "PLAN_SUMMARY")},
     "PLAN_SUMMARY_FROM_P": ["p_guess", "accuracy", "confidence", "pilot"],
 }

@@ -14,7 +14,7 @@ from ..core import accuracy as _accuracy
 from ..core.methods import METHOD_NAMES, pass_fail_sigma2_from_p
 from ..core.operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
 from . import cells
-from .estimate import HELP, planning_sigma2
+from .estimate import HELP, clean_model, clean_shape_and_scale, planning_sigma2
 from .formula import formula
 
 EXACT_UNITS_LIMIT = 10_000
@@ -25,17 +25,24 @@ DEFAULT_REPLICATIONS = {"known-shape": 10_000, "fitted-shape": 10_000}
 WORK_LIMIT = {"known-shape": 20_000_000, "fitted-shape": 4_000_000}
 RUN_OVERHEAD = {"known-shape": 20, "fitted-shape": 400}
 SEED_LIMIT = 2**63 - 1
+# The Weibull and lognormal simulations refit every prefix of every run (no screen, and the
+# Weibull fitted shape has no running sums): smaller budgets, in the same units.
+MODEL_DEFAULT_REPLICATIONS = 2_000
+MODEL_WORK_LIMIT = {"known-shape": 2_000_000, "fitted-shape": 2_000_000}
+MODEL_RUN_OVERHEAD = {"known-shape": 100, "fitted-shape": 100}
+WEIBULL_FITTED_WORK_LIMIT, WEIBULL_FITTED_RUN_OVERHEAD = 300_000, 1_000
 
 PLAN_HELP = {
     "threshold": HELP["threshold"],
-    "shape": "Guessed gamma shape a > 0",
-    "scale": "Guessed gamma scale s > 0, unit of the lifetimes",
+    "shape": "Guessed shape > 0 of the model (gamma a, Weibull beta, lognormal sigma)",
+    "scale": "Guessed scale > 0 of the model, unit of the lifetimes (gamma s, Weibull eta, lognormal median)",
     "accuracy": HELP["accuracy"],
     "confidence": HELP["confidence"],
     "pilot": "Pilot sample: units tested before the rule is first consulted (a whole number >= 2)",
     "method": HELP["method"],
     "replications": "Optional: simulated test runs for known-shape and fitted-shape (default 10,000)",
     "seed": "Optional: seed of the simulation; the same seed gives the same figures",
+    "model": HELP["model"],
 }
 
 
@@ -50,20 +57,31 @@ def _exact_limit(n_star, pilot):
             f"{EXACT_UNITS_LIMIT:,} units: ask for less accuracy, or run `tailstop plan`")
 
 
-def _replications(value, method, n_star, pilot):
+def _budget(method, model):
+    """(default replications, work limit, run overhead) of a cell's simulation."""
+    if model == "gamma":
+        return DEFAULT_REPLICATIONS[method], WORK_LIMIT[method], RUN_OVERHEAD[method]
+    if model == "weibull" and method == "fitted-shape":
+        return MODEL_DEFAULT_REPLICATIONS, WEIBULL_FITTED_WORK_LIMIT, WEIBULL_FITTED_RUN_OVERHEAD
+    return MODEL_DEFAULT_REPLICATIONS, MODEL_WORK_LIMIT[method], MODEL_RUN_OVERHEAD[method]
+
+
+def _replications(value, method, n_star, pilot, model="gamma"):
     units = max(n_star, pilot)
-    affordable = int(WORK_LIMIT[method] // (units + RUN_OVERHEAD[method]))
+    default, limit, overhead = _budget(method, model)
+    affordable = int(limit // (units + overhead))
+    label = method if model == "gamma" else f"{model} {method}"
     if cells.is_missing(value):
-        replications = min(DEFAULT_REPLICATIONS[method], affordable)
+        replications = min(default, affordable)
         if replications < 100:
             raise cells.InputError(
                 f"this plan needs about {math.ceil(units):,} units per run; a cell simulates at most "
-                f"{WORK_LIMIT[method]:,} replications × units for {method}: ask for less accuracy, or run `tailstop plan`")
+                f"{limit:,} replications × units for {label}: ask for less accuracy, or run `tailstop plan`")
         return replications
     replications = cells.whole_number(value, "replications", minimum=1, maximum=REPLICATIONS_LIMIT)
     if replications > affordable:
         raise cells.InputError(
-            f"replications × units per run is capped at {WORK_LIMIT[method]:,} for {method} so that the cell stays quick; "
+            f"replications × units per run is capped at {limit:,} for {label} so that the cell stays quick; "
             f"this plan needs about {math.ceil(units):,} units per run: use at most {max(affordable, 1):,} replications")
     return replications
 
@@ -74,28 +92,33 @@ def _seed(value):
     return cells.whole_number(value, "seed", minimum=0, maximum=SEED_LIMIT)
 
 
-def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed):
+def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model=None):
     """Operating characteristics for formula arguments as a spreadsheet passes them."""
     name = cells.method_name(method, METHOD_NAMES)
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
-    sigma2 = planning_sigma2(threshold, shape, scale, name)
+    sigma2 = planning_sigma2(threshold, shape, scale, name, model)
     n_star = float(_accuracy.units_for_accuracy(sigma2, d, level))
     m = _pilot(pilot)
-    c, a, s = (cells.positive(v, label) for v, label in ((threshold, "threshold"), (shape, "shape"), (scale, "scale")))
+    c = cells.positive(threshold, "threshold")
+    a, s, model_name = clean_shape_and_scale(shape, scale, model)
     if name == "pass-fail":
         _exact_limit(n_star, m)
-        return operating_characteristics(c, a, s, d, level, m, name)
-    count = _replications(replications, name, n_star, m)
-    return operating_characteristics(c, a, s, d, level, m, name, replications=count, seed=_seed(seed))
+        return operating_characteristics(c, a, s, d, level, m, name, model=model_name)
+    count = _replications(replications, name, n_star, m, model_name)
+    return operating_characteristics(c, a, s, d, level, m, name, replications=count, seed=_seed(seed),
+                                     model=model_name)
 
 
 def _number_or_text(value):
     return value if math.isfinite(value) else "beyond n_max"
 
 
-def summary_table(result):
-    """The 2-column labelled table of PLAN_SUMMARY."""
-    rows = [["method", result.method], ["figures", "exact" if result.exact else "simulated"]]
+def summary_table(result, model="gamma"):
+    """The 2-column labelled table of PLAN_SUMMARY (a ``model`` row under a Weibull or lognormal guess)."""
+    rows = [["method", result.method]]
+    if model != "gamma":
+        rows.append(["model", model])
+    rows.append(["figures", "exact" if result.exact else "simulated"])
     if not result.exact:
         rows += [["replications", result.replications], ["seed", result.seed]]
     rows.append(["true probability p", result.probability])
@@ -111,6 +134,7 @@ PLAN_ARGUMENTS = dict(
     threshold=PLAN_HELP["threshold"], shape=PLAN_HELP["shape"], scale=PLAN_HELP["scale"],
     accuracy=PLAN_HELP["accuracy"], confidence=PLAN_HELP["confidence"], pilot=PLAN_HELP["pilot"],
     method=PLAN_HELP["method"], replications=PLAN_HELP["replications"], seed=PLAN_HELP["seed"],
+    model=PLAN_HELP["model"],
 )
 
 
@@ -122,22 +146,27 @@ def _finite(value, what):
 
 
 @formula(**PLAN_ARGUMENTS)
-def PLAN_EXPECTED_UNITS(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None):
-    """Expected number of units E[N] the sequential rule will test under the guessed gamma parameters."""
-    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed)
+def PLAN_EXPECTED_UNITS(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None,
+                        model=None):
+    """Expected number of units E[N] the sequential rule will test under the guessed model parameters."""
+    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model)
     return _finite(result.expected_units, "E[N]")
 
 
 @formula(**PLAN_ARGUMENTS)
-def PLAN_COVERAGE(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None):
-    """Real coverage of the final interval of the sequential rule under the guessed gamma parameters."""
-    return plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed).coverage
+def PLAN_COVERAGE(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None,
+                  model=None):
+    """Real coverage of the final interval of the sequential rule under the guessed model parameters."""
+    return plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed,
+                           model).coverage
 
 
 @formula(returns="table", **PLAN_ARGUMENTS)
-def PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None):
+def PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None,
+                 model=None):
     """Table (2 columns) of what the sequential rule will do: n*, E[N], sd and quantiles of N, coverage."""
-    return summary_table(plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed))
+    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model)
+    return summary_table(result, clean_model(model))
 
 
 @formula(returns="table", p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"],

@@ -143,26 +143,42 @@ def sigma2_fitted_shape(shape, t):
 # --------------------------------------------------------------------------- maximum likelihood
 
 
-def _shape_equation(beta, centred, mean_log):
+def _shape_equation(beta, centred, mean_log, mask):
     """h(β) and h'(β) for rows of log-lifetimes centred at their maximum (so x^β <= 1)."""
     weights = np.exp(beta[:, None] * centred)
+    if mask is not None:
+        weights = weights * mask
     total = weights.sum(axis=-1)
     first = (weights * centred).sum(axis=-1) / total
     second = (weights * centred * centred).sum(axis=-1) / total
     return first - 1.0 / beta - mean_log, second - first * first + 1.0 / (beta * beta)
 
 
-def fit_shape_rows(log_x, *, tolerance=1e-14, iterations=200):
+def fit_shape_rows(log_x, counts=None, *, tolerance=1e-14, iterations=200):
     """The Weibull ML shape of every row of log-lifetimes (location 0); NaN where a row's values are all equal.
 
-    Bracketed Newton on h(β) = 0 from the moment estimate; each row stops on
-    its own once its relative step is below ``tolerance``.
+    ``counts`` (optional, one per row) uses only the first ``counts[i]`` values of row i, so the
+    prefixes of one log can be fitted at once. Bracketed Newton on h(β) = 0 from the moment
+    estimate; each row stops on its own once its relative step is below ``tolerance``.
     """
     log_x = np.atleast_2d(np.asarray(log_x, dtype=float))
-    centred = log_x - log_x.max(axis=-1, keepdims=True)
-    mean_log = centred.mean(axis=-1)
-    spread = centred.std(axis=-1)
-    valid = spread > 1e-12 * np.maximum(1.0, np.abs(log_x).max(axis=-1))
+    mask = None
+    if counts is not None:
+        mask = np.arange(log_x.shape[-1]) < np.asarray(counts).reshape(-1, 1)
+        log_x = np.where(mask, log_x, -np.inf)
+    top = log_x.max(axis=-1, keepdims=True)
+    centred = log_x - top
+    if mask is not None:
+        centred = np.where(mask, centred, 0.0)
+        size = mask.sum(axis=-1)
+        mean_log = centred.sum(axis=-1) / size
+        spread = np.sqrt(np.where(mask, (centred - mean_log[:, None]) ** 2, 0.0).sum(axis=-1) / size)
+        magnitude = np.where(mask, np.abs(np.where(mask, log_x, 0.0)), 0.0).max(axis=-1)
+    else:
+        mean_log = centred.mean(axis=-1)
+        spread = centred.std(axis=-1)
+        magnitude = np.abs(log_x).max(axis=-1)
+    valid = spread > 1e-12 * np.maximum(1.0, magnitude)
     beta = np.where(valid, math.pi / (math.sqrt(6.0) * np.where(valid, spread, 1.0)), np.nan)
     low, high = np.zeros_like(beta), np.full_like(beta, np.inf)
     active = np.flatnonzero(valid)
@@ -170,7 +186,8 @@ def fit_shape_rows(log_x, *, tolerance=1e-14, iterations=200):
         if active.size == 0:
             break
         current = beta[active]
-        value, slope = _shape_equation(current, centred[active], mean_log[active])
+        value, slope = _shape_equation(current, centred[active], mean_log[active],
+                                       None if mask is None else mask[active])
         low[active] = np.where(value < 0, current, low[active])
         high[active] = np.where(value > 0, current, high[active])
         step = current - value / slope
@@ -287,8 +304,16 @@ def running_fit(lifetimes):
             log_scales[n - 1] = origin + log_scale_for_shape(ell[:n], shapes[n - 1])[0]
 
     start = min(size, _EXACT_BELOW)
-    for n in range(2, start + 1):
-        direct(n)
+    if start >= 2:  # the first prefixes fitted directly, all at once
+        counts = np.arange(2, start + 1)
+        block = np.broadcast_to(ell[:start], (counts.size, start))
+        first = fit_shape_rows(block, counts)
+        shapes[1:start] = first
+        mask = np.arange(start) < counts[:, None]
+        tilted = np.where(mask, first[:, None] * (block - top[counts - 1, None]), -np.inf)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            log_mean = np.log(np.exp(tilted).sum(axis=-1) / counts)
+            log_scales[1:start] = origin + top[counts - 1] + log_mean / first
     row, fresh = start, True
     while row < size:
         if fresh:

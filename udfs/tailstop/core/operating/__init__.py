@@ -30,7 +30,8 @@ References: Banerjee, S. & Mukhopadhyay, N. (2016), Ann. Inst. Stat. Math. 68,
 from __future__ import annotations
 
 from ..methods import get_method
-from ..models.gamma.tail import tail_probability
+from ..models import DEFAULT_MODEL, get_model
+from ..models.gamma.tail import tail_probability  # noqa: F401  (the gamma tail, as callers import it from here)
 from .calibration import calibrate
 from .exact import pass_fail_exact
 from .monte_carlo import reference_simulation, simulate
@@ -68,7 +69,8 @@ def _exact_from_guess(threshold, shape, scale, accuracy, confidence, pilot, **op
     options.pop("seed", None)
     options.pop("screen", None)
     options.pop("common_numbers", None)
-    p = float(tail_probability(threshold, shape, scale).p)
+    model = options.pop("model", DEFAULT_MODEL)
+    p = float(get_model(model).tail_probability(threshold, shape, scale).p)
     if not 0 < p < 1:
         raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
     return pass_fail_exact(p, accuracy, confidence, pilot, **options)
@@ -95,12 +97,15 @@ def operating_characteristics(threshold, shape, scale, accuracy, confidence, pil
     ``options`` are passed on to ``pass_fail_exact`` (n_max, check_every,
     stop_z, progress) or ``simulate`` (replications, seed, n_max, ...);
     replications and seed are ignored by the exact pass-fail computation.
+    ``model`` (gamma, weibull, lognormal) is the lifetime model of the guess:
+    for pass-fail it only turns the guess into p.
     """
     return _BY_METHOD[get_method(method).name](threshold, shape, scale, accuracy, confidence, pilot, **options)
 
 
 def compare_methods(threshold, shape, scale, accuracy, confidence, pilot, *, replications=10_000,
-                    seed=DEFAULT_SEED, fitted_replications=None, progress=None) -> MethodComparison:
+                    seed=DEFAULT_SEED, fitted_replications=None, progress=None,
+                    model=DEFAULT_MODEL) -> MethodComparison:
     """n*, E[N], coverage... of the three methods at the same planning guess.
 
     pass-fail exact; known-shape and fitted-shape simulated with the same seed
@@ -115,7 +120,7 @@ def compare_methods(threshold, shape, scale, accuracy, confidence, pilot, *, rep
             if progress is not None:
                 progress(base + weight * fraction)
 
-        options = {"progress": report}
+        options = {"progress": report, "model": model}
         if method in counts:
             options.update(replications=counts[method], seed=seed)
         results[method] = operating_characteristics(*plan, method, **options)

@@ -14,9 +14,11 @@ from ..methods import (
     get_method,
     model_sigma2,
 )
+from ..models import DEFAULT_MODEL, get_model
 from ..models.gamma.fit import log_minus_digamma, shape_from_log_ratio
 from ..models.gamma.tail import tail_probability
 from ..models.gamma.variance import sigma2_fitted_shape
+from .model_simulation import simulate_model_runs
 from .results import (
     DEFAULT_SEED,
     QUANTILE_LEVELS,
@@ -363,13 +365,13 @@ def _simulate_chunk(plan: _Plan, rng, count, screen, common_numbers=False):
 
 def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known-shape", *,
              replications=10_000, seed=DEFAULT_SEED, n_max=None, check_every=1, stop_z=None,
-             screen=True, common_numbers=False, progress=None) -> OperatingCharacteristics:
-    """Monte Carlo operating characteristics of the stopping rule under a gamma guess.
+             screen=True, common_numbers=False, progress=None, model=DEFAULT_MODEL) -> OperatingCharacteristics:
+    """Monte Carlo operating characteristics of the stopping rule under a guessed lifetime model.
 
     Parameters
     ----------
     threshold, shape, scale : float
-        The planning guess: lifetimes ~ gamma(shape, scale), threshold c.
+        The planning guess: lifetimes ~ model(shape, scale), threshold c.
     accuracy, confidence, pilot : float, float, int
         The plan.
     method : {'known-shape', 'fitted-shape', 'pass-fail'}
@@ -393,6 +395,11 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
         (slower; used by calibration, so coverage(z') is compared on the same data).
     progress : callable, optional
         Called with the fraction done (0..1).
+    model : str
+        The lifetime model of the guess and of the estimator: gamma (the screened,
+        vectorized simulation here), weibull or lognormal (``model_simulation``, where
+        every run sees its own lifetimes whatever the boundary, so ``common_numbers``
+        holds already).
 
     Returns
     -------
@@ -402,21 +409,28 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
         the distance between the order statistics at R·level ± √(R·level(1-level)).
     """
     _check_plan(accuracy, confidence, pilot, check_every)
-    model = get_method(method)
+    estimator = get_method(method)
     replications = int(replications)
     if replications < 1:
         raise ValueError(f"replications must be at least 1 (got {replications})")
-    tail = tail_probability(threshold, shape, scale)
+    lifetime = get_model(model)
+    tail = lifetime.tail_probability(threshold, shape, scale)
     p = float(tail.p)
-    sigma2 = float(model_sigma2(model.name, threshold, shape, scale))
+    sigma2 = float(model_sigma2(estimator.name, threshold, shape, scale, lifetime.name))
     if not (0 < p < 1 and 0 < sigma2 < math.inf):
         raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
     n_star = float(_accuracy.units_for_accuracy(sigma2, accuracy, confidence))
     n_max = default_n_max(n_star, pilot) if n_max is None else int(n_max)
     if n_max < pilot:
         raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
-    plan = _Plan(float(threshold), float(shape), float(scale), model.name, float(accuracy),
+    plan = _Plan(float(threshold), float(shape), float(scale), estimator.name, float(accuracy),
                  _stop_confidence(confidence, stop_z), int(pilot), n_max, int(check_every), p)
+    if lifetime.name != DEFAULT_MODEL:
+        if plan.method == "pass-fail":
+            raise ValueError("pass-fail plans are exact: use operating_characteristics (or pass_fail_exact)")
+        units, covered = simulate_model_runs(plan, lifetime.name, np.random.default_rng(seed), replications,
+                                             n_star, progress)
+        return _simulated_result(plan, n_star, confidence, _stop_z(confidence, stop_z), seed, units, covered)
     sigma_screen = _SCREENS[plan.method](plan) if (screen and plan.method in _SCREENS) else None
     if sigma_screen is not None and not sigma_screen.valid:
         sigma_screen = None  # the rule's σ̂² is no longer what the table assumes: check every prefix
