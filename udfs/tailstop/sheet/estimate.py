@@ -17,6 +17,7 @@ from ..core.methods import (
     pass_fail_sigma2_from_p,
 )
 from ..core.models import DEFAULT_MODEL, MODEL_NAMES, get_model
+from ..core.time_terminated import check_test_time, time_terminated_sigma2
 from ..core.models.gamma.fit import fit_gamma, gamma_fit_pvalue
 from . import cells
 from .formula import formula
@@ -33,6 +34,8 @@ HELP = {
     "method": "Optional: pass-fail (default), known-shape or fitted-shape",
     "known_shape": "Optional: the model's shape, required when method is known-shape",
     "model": "Optional lifetime model: gamma (default), weibull or lognormal (as scipy.stats parameterises them)",
+    "test_time": "Optional: every unit still running at this time is stopped there (a time-terminated test), "
+                 "same unit as the lifetimes; blank: every unit runs to failure",
     "units": "Number of units tested (a whole number >= 1)",
     "p_guess": "Guessed probability of exceeding the threshold, between 0 and 1",
 }
@@ -173,12 +176,25 @@ def TAIL_ODDS_BOUNDS(observations, threshold, accuracy, method=None, shape=None,
     return [[interval.low, interval.high]]
 
 
-def planning_sigma2(threshold, shape, scale, method, model=None):
-    """σ² under guessed model parameters, from formula arguments."""
+def clean_test_time(test_time, threshold, method):
+    """The test time at which every unit still running is stopped; None when left out (run to failure)."""
+    if cells.is_missing(test_time):
+        return None
+    value = cells.positive(test_time, "test_time")
+    try:
+        check_test_time(value, threshold, method)
+    except ValueError as problem:
+        raise cells.InputError(str(problem)) from None
+    return value
+
+
+def planning_sigma2(threshold, shape, scale, method, model=None, test_time=None):
+    """σ² under guessed model parameters, from formula arguments; every unit stopped at ``test_time``."""
     name = cells.method_name(method, METHOD_NAMES)
     c = cells.positive(threshold, "threshold")
     a, s, model_name = clean_shape_and_scale(shape, scale, model)
-    sigma2 = float(model_sigma2(name, c, a, s, model_name))
+    stop = clean_test_time(test_time, c, name)
+    sigma2 = float(time_terminated_sigma2(name, c, a, s, stop, model_name))
     if not 0 < sigma2 < float("inf"):
         raise cells.InputError("the guessed model puts (almost) every unit on one side of the threshold; "
                                "no finite number of units reaches this accuracy")
@@ -202,11 +218,12 @@ def unit_count(n_star) -> int:
 @formula(
     threshold=HELP["threshold"], shape="Guessed shape > 0 of the model", scale=f"Guessed {HELP['scale'][0].lower()}{HELP['scale'][1:]}",
     accuracy=HELP["accuracy"], confidence=HELP["confidence"], method=HELP["method"], model=HELP["model"],
+    test_time=HELP["test_time"],
 )
-def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None, model=None):
+def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None, model=None, test_time=None):
     """Units a fixed-size test needs for the accuracy at the confidence, from guessed model parameters."""
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
-    sigma2 = planning_sigma2(threshold, shape, scale, method, model)
+    sigma2 = planning_sigma2(threshold, shape, scale, method, model, test_time)
     return unit_count(_accuracy.units_for_accuracy(sigma2, d, level))
 
 
@@ -221,14 +238,15 @@ def UNITS_REQUIRED_FROM_P(p_guess, accuracy, confidence):
 @formula(
     units=HELP["units"], threshold=HELP["threshold"], shape="Guessed shape > 0 of the model",
     scale=f"Guessed {HELP['scale'][0].lower()}{HELP['scale'][1:]}", confidence=HELP["confidence"],
-    method=HELP["method"], model=HELP["model"],
+    method=HELP["method"], model=HELP["model"], test_time=HELP["test_time"],
 )
-def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None, model=None):
+def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None, model=None, test_time=None):
     """Accuracy factor d that a fixed-size test of this many units reaches at the confidence."""
     n = cells.whole_number(units, "units", minimum=1)
     level = cells.confidence(confidence)
+    sigma2 = planning_sigma2(threshold, shape, scale, method, model, test_time)
     with np.errstate(over="ignore"):
-        d = float(_accuracy.accuracy_for_units(planning_sigma2(threshold, shape, scale, method, model), n, level))
+        d = float(_accuracy.accuracy_for_units(sigma2, n, level))
     if not np.isfinite(d):
         raise cells.InputError("with so few units the accuracy factor is beyond any number; add units")
     return d
