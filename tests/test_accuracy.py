@@ -32,6 +32,48 @@ def test_whole_units_does_not_round_up_rounding_error():
     assert whole_units(100.001) == 101
 
 
+def _mp_n_star(p, accuracy, confidence):
+    """n* = (z / ln d)² / (p (1 - p)) at 40 digits (pass-fail σ², METHOD.md §3-§4)."""
+    import mpmath
+
+    with mpmath.workdps(40):
+        z = mpmath.sqrt(2) * mpmath.erfinv(mpmath.mpf(confidence))
+        p = mpmath.mpf(p)
+        return (z / mpmath.log(mpmath.mpf(accuracy))) ** 2 / (p * (1 - p))
+
+
+def test_whole_units_never_rounds_a_large_n_star_down():
+    # check value: mpmath at 40 digits, n* = 4,548,484,529.96 for p = 1e-6, d = 1.05, 99.9 %;
+    # a slack proportional to n* (4.5 units here) used to give 4,548,484,526
+    reference = _mp_n_star(1e-6, 1.05, 0.999)
+    assert 4548484529.9 < reference < 4548484530
+    n_star = float(units_for_accuracy(1.0 / (1e-6 * (1 - 1e-6)), 1.05, 0.999))
+    assert whole_units(n_star) == 4548484530
+    assert whole_units(4548484529.96) == 4548484530
+    # every fractional part above the slack rounds up, at any size
+    for whole in (3.0, 1e6, 4.5e9, 2.0**52 / 4):
+        assert whole_units(whole + 0.25) == whole + 1
+
+
+def test_units_required_rounds_up_a_gamma_plan():
+    import mpmath
+
+    from tailstop.sheet import UNITS_REQUIRED
+
+    # check value: mpmath at 40 digits — p = Q(0.3, 6590.9013792814685 / 600) and the pass-fail
+    # n* = 422,880,869.378…, so the plan needs 422,880,870 units
+    with mpmath.workdps(40):
+        p = mpmath.gammainc(mpmath.mpf(0.3), mpmath.mpf(6590.9013792814685) / 600, mpmath.inf, regularized=True)
+    reference = _mp_n_star(p, 1.1, 0.95)
+    assert 422880869.3 < reference < 422880869.4
+    assert UNITS_REQUIRED(6590.9013792814685, 0.3, 600, 1.1, 0.95) == 422880870
+
+
+def test_whole_units_of_a_tiny_plan_is_one_unit():
+    assert whole_units(1e-12) == 1
+    assert whole_units(0.5) == 1
+
+
 @given(st.floats(0.01, 1e4), st.floats(1.001, 20.0), st.floats(0.5, 0.999))
 def test_accuracy_for_units_inverts_units_for_accuracy(sigma2, d, confidence):
     n = float(units_for_accuracy(sigma2, d, confidence))

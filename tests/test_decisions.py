@@ -321,10 +321,10 @@ def test_the_rule_stops_exactly_when_the_units_reach_units_needed_now(bench_log,
 
 
 def test_two_stage_pass_fail_by_hand():
-    # pilot of 20 units, 6 beyond the threshold: p̃ = 6.5/21, σ̃² = 21²/(6.5·14.5) = 4.6790;
-    # (z / ln 1.5)² = (1.959964 / 0.405465)² = 23.366; 23.366 · 4.6790 = 109.33 -> 110 units in all
+    # pilot of 20 units, 6 beyond the threshold: p̂ = 6/20 = 0.3, σ̂² = 1/(0.3·0.7) = 4.7619;
+    # (z / ln 1.5)² = (1.959964 / 0.405465)² = 23.366; 23.366 · 4.7619 = 111.27 -> 112 units in all
     pilot = [[1600.0]] * 6 + [[900.0]] * 14
-    assert TWO_STAGE_UNITS(pilot, 1500.0, 1.5, 0.95) == 110
+    assert TWO_STAGE_UNITS(pilot, 1500.0, 1.5, 0.95) == 112
     assert TWO_STAGE_UNITS(pilot, 1500.0, 1.5, 0.95) == max(20, UNITS_NEEDED_NOW(pilot, 1500.0, 1.5, 0.95))
     # a loose accuracy is reached by the pilot itself: no final batch
     assert TWO_STAGE_UNITS(pilot, 1500.0, 30.0, 0.95) == 20

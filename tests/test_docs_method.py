@@ -56,24 +56,88 @@ def test_method_warning_thresholds_match_the_code():
 
 def test_method_planning_example():
     text = " ".join(page("method.md").split())
-    assert "`PLAN_SUMMARY_FROM_P(0.9, 1.5, 0.95, 10)` gives n* = 260, E[N] = 261.2 and an exact coverage of 0.946" in text
-    table = dict(PLAN_SUMMARY_FROM_P(0.9, 1.5, 0.95, 10))
+    assert "`PLAN_SUMMARY_FROM_P(0.3, 1.5, 0.95, 10)` gives n* = 112, E[N] = 113.2 and an exact coverage of 0.947" in text
+    table = dict(PLAN_SUMMARY_FROM_P(0.3, 1.5, 0.95, 10))
     # the quoted figures against the propagation written in the test (METHOD.md §5–6, not the package's rule)
     from test_planning_independent import pass_fail_plan_by_hand
 
-    distribution, _, coverage = pass_fail_plan_by_hand(0.9, 1.5, 0.95, 10, 1500)
-    assert round(float(np.dot(np.arange(distribution.size), distribution) / distribution.sum()), 1) == 261.2
-    assert round(coverage, 3) == 0.946
-    assert table["fixed-size units n*"] == 260
-    assert round(table["expected units E[N]"], 1) == 261.2
-    assert round(table["coverage"], 3) == 0.946
-    assert "raises the critical value from 1.960 to 1.975; the coverage is then 0.951" in text
-    assert "about 4 units on average (E[N] = 265.0)" in text
-    calibration = operating.calibrate(lambda z: operating.pass_fail_exact(0.9, 1.5, 0.95, 10, stop_z=z), 0.95)
-    assert (round(calibration.z, 3), round(calibration.z_calibrated, 3)) == (1.960, 1.975)
-    assert round(calibration.calibrated.coverage, 3) == 0.951
-    assert round(calibration.calibrated.expected_units, 1) == 265.0
-    assert round(calibration.calibrated.expected_units - table["expected units E[N]"]) == 4
+    distribution, _, coverage = pass_fail_plan_by_hand(0.3, 1.5, 0.95, 10, 1500)
+    assert round(float(np.dot(np.arange(distribution.size), distribution) / distribution.sum()), 1) == 113.2
+    assert round(coverage, 3) == 0.947
+    assert table["fixed-size units n*"] == 112
+    assert round(table["expected units E[N]"], 1) == 113.2
+    assert round(table["coverage"], 3) == 0.947
+    assert "raises the critical value from 1.960 to 1.964; the coverage is then 0.952" in text
+    assert "about half a unit on average (E[N] = 113.6)" in text
+    calibration = operating.calibrate(lambda z: operating.pass_fail_exact(0.3, 1.5, 0.95, 10, stop_z=z), 0.95)
+    assert (round(calibration.z, 3), round(calibration.z_calibrated, 3)) == (1.960, 1.964)
+    assert round(calibration.calibrated.coverage, 3) == 0.952
+    assert round(calibration.calibrated.expected_units, 1) == 113.6
+    assert 0.3 < calibration.calibrated.expected_units - table["expected units E[N]"] < 0.7
+
+
+def _propagate(p, accuracy, confidence, pilot, regularize_everywhere):
+    """Exact (E[N], coverage) of the pass-fail rule under one reading of σ̂², by plain propagation.
+
+    Written from the text of docs/method.md, not from the package: stop at (n, S) when 0 < S < n
+    and n >= (z / ln d)² / (r (1 - r)), r = S / n (the plain share) or r = (S + ½) / (n + 1)
+    (p̃ at every n); the final interval [q̂/d, q̂ d] with q̂ = S / (n - S), closed, with ties on
+    its ends decided in whole numbers (p = a/b and d = e/f as the decimals written).
+    """
+    from fractions import Fraction
+
+    import numpy as np
+    from scipy import stats
+
+    a, b = Fraction(repr(p)).as_integer_ratio()
+    e, f = Fraction(repr(accuracy)).as_integer_ratio()
+
+    factor = (stats.norm.isf((1 - confidence) / 2) / math.log(accuracy)) ** 2
+    running = stats.binom.pmf(np.arange(pilot + 1), pilot, p)
+    mean = coverage = 0.0
+    n = pilot
+    while running.sum() > 1e-12:
+        k = np.arange(n + 1)
+        r = (k + 0.5) / (n + 1) if regularize_everywhere else k / n
+        stop = (k > 0) & (k < n) & (n * r * (1 - r) >= factor)
+        # q/d <= q^ <= q d with q = a/(b-a), q^ = k/(n-k), d = e/f, in whole numbers
+        covers = (a * (n - k) * f <= k * (b - a) * e) & (k * (b - a) * f <= e * a * (n - k))
+        mean += n * running[stop].sum()
+        coverage += running[stop & covers].sum()
+        running = np.where(stop, 0.0, running)
+        running = np.append(running, 0.0) * (1 - p) + np.append(0.0, running) * p
+        n += 1
+    return mean, coverage
+
+
+def test_method_table_of_the_two_readings_of_the_regularization():
+    text = page("method.md")
+    rows = re.findall(r"^\| ([\d.]+) \| ([\d.]+) \| (0\.9\d?) \| ([\d.]+) \(([\d.]+)\) \| ([\d.]+) \(([\d.]+)\) \|$",
+                      text, flags=re.MULTILINE)
+    assert len(rows) == 9
+    for p, d, level, every, every_units, plain, plain_units in rows:
+        p, d, level = float(p), float(d), float(level)
+        if p < 0.005:
+            continue  # the p = 0.001 rows take tens of thousands of units: the package checks them below
+        for regularize, coverage, units in ((True, every, every_units), (False, plain, plain_units)):
+            mean, covered = _propagate(p, d, level, 10, regularize)
+            assert f"{covered:.3f}" == coverage and f"{mean:.1f}" == units, (p, d, level, regularize)
+    for p, d, level, _, _, plain, plain_units in rows:
+        result = operating.pass_fail_exact(float(p), float(d), float(level), 10)
+        assert (f"{result.coverage:.3f}", f"{result.expected_units:.1f}") == (plain, plain_units)
+
+
+def test_method_table_of_pass_fail_coverage():
+    text = page("method.md")
+    header = re.search(r"^\| nominal \| d \| p = ([\d.]+) \| (.*) \|$", text, flags=re.MULTILINE)
+    ps = [float(header.group(1))] + [float(v) for v in header.group(2).split(" | ")]
+    rows = re.findall(r"^\| (0\.90|0\.95|0\.90 or 0\.95) \| ([\d.]+) \| ((?:[\d.]+ \| )+[\d.]+) \|$", text,
+                      flags=re.MULTILINE)
+    assert len(rows) == 8
+    for levels, d, figures in rows:
+        for level in (0.90, 0.95) if "or" in levels else (float(levels),):
+            for p, quoted in zip(ps, figures.split(" | ")):
+                assert f"{operating.pass_fail_exact(p, float(d), level, 10).coverage:.3f}" == quoted, (level, d, p)
 
 
 def test_getting_started_figures():
@@ -117,3 +181,16 @@ def test_getting_started_python_examples_run_and_say_what_the_comments_say(capsy
     assert "4 of 12 units outlasted the threshold" in printed[2]
     assert printed[3].startswith("few-on-a-side - 3 of 11")
     assert printed[4].startswith("accuracy-needs-more")
+
+
+def test_cautions_quote_the_exact_shortfalls():
+    text = " ".join(page("cautions.md").split())
+    quoted = {
+        "0.892 for a nominal 0.90 at d = 2, p = 0.03": (0.03, 2.0, 0.90),
+        "0.945 for 0.95 at d = 3, p = 0.03": (0.03, 3.0, 0.95),
+        "0.935 at d = 5, p = 0.03": (0.03, 5.0, 0.95),
+        "0.904 at d = 10, p = 0.01": (0.01, 10.0, 0.95),
+    }
+    for phrase, (p, d, level) in quoted.items():
+        assert phrase in text
+        assert f"{operating.pass_fail_exact(p, d, level, 10).coverage:.3f}" == phrase.split()[0]

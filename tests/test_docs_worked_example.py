@@ -130,8 +130,8 @@ def exact_pass_fail(p, accuracy, confidence, pilot, n_max):
         if n < pilot:
             continue
         k = np.arange(n + 1)
-        p_tilde = (k + 0.5) / (n + 1)
-        stop = (n >= factor / (p_tilde * (1 - p_tilde))) & (k > 0) & (k < n)
+        # the plain share p^ = k / n in σ̂² (docs/method.md); no stop while k = 0 or k = n
+        stop = (k * (n - k) >= factor * n) & (k > 0) & (k < n)
         with np.errstate(divide="ignore"):
             q_hat = k / (n - k)
         covers = (q_hat / accuracy <= odds) & (odds <= q_hat * accuracy)

@@ -35,37 +35,52 @@ def test_tiny_case_worked_on_paper():
     # Worked by hand (common practice, no published source): pilot 2, accuracy d = 5.75,
     # confidence 0.90, so z = 1.644854 and the boundary factor is
     #   B = (z / ln 5.75)^2 = (1.644854 / 1.749200)^2 = 0.8843.
-    # The rule stops at (n, S) when 0 < S < n and n >= B / (p~ (1 - p~)), p~ = (S + 1/2) / (n + 1):
-    #   n = 2, S = 1: p~ = 1/2,   B / 0.25     = 3.537 > 2  -> continue
-    #   n = 3, S = 1 or 2: p~ = 3/8,  B / 0.234375 = 3.773 > 3  -> continue
-    #   n = 4, S = 2: p~ = 1/2,   B / 0.25     = 3.537 <= 4 -> STOP
-    #   n = 4, S = 1 or 3: p~ = 3/10, B / 0.21 = 4.211 > 4  -> continue
-    #   n = 5, S = 1 or 4: p~ = 1/4,  B / 0.1875 = 4.716 <= 5 -> STOP
-    #   n = 5, S = 2 or 3: p~ = 5/12, B / 0.24306 = 3.638 <= 5 -> STOP
+    # The rule stops at (n, S) when 0 < S < n and n >= B / (p^ (1 - p^)), p^ = S / n,
+    # that is when S (n - S) / n >= B:
+    #   n = 2, S = 1:      1 * 1 / 2 = 0.500 < B -> continue
+    #   n = 3, S = 1 or 2: 1 * 2 / 3 = 0.667 < B -> continue
+    #   n = 4, S = 2:      2 * 2 / 4 = 1.000 >= B -> STOP
+    #   n = 4, S = 1 or 3: 1 * 3 / 4 = 0.750 < B -> continue
+    #   n = 5, S = 1 or 4: 1 * 4 / 5 = 0.800 < B -> continue
+    #   n = 5, S = 2 or 3: 2 * 3 / 5 = 1.200 >= B -> STOP
     # (S = 0 or S = n never stops.) With p = 0.3, q = 0.7:
     #   P(N = 4) = P(S4 = 2) = 6 p^2 q^2 = 6 * 0.09 * 0.49 = 0.2646
-    #   P(N = 5) = P(S4 = 0) p + P(S4 = 1) + P(S4 = 3) + P(S4 = 4) q
-    #            = p q^4 + 4 p q^3 + 4 p^3 q + p^4 q
-    #            = 0.07203 + 0.41160 + 0.07560 + 0.00567 = 0.56490
-    #   P(N > 5) = q^5 + p^5 = 0.16807 + 0.00243 = 0.17050          (total 1.00000)
+    #   P(N = 5) = P(S4 = 1) p + P(S4 = 3) q = 4 p^2 q^3 + 4 p^3 q^2 = 4 p^2 q^2 = 0.1764
+    #   P(N > 5) = q^5 + 5 p q^4 + 5 p^4 q + p^5 = 0.16807 + 0.36015 + 0.02835 + 0.00243 = 0.5590
+    #                                                                       (total 1.0000)
     # Coverage: the true odds are 0.3/0.7 = 0.428571; the interval is [q^/d, q^ d]:
     #   (4,2) q^ = 1    -> [0.1739, 5.75]  covers
-    #   (5,1) q^ = 1/4  -> [0.0435, 1.4375] covers
     #   (5,2) q^ = 2/3  -> [0.1159, 3.833] covers
     #   (5,3) q^ = 3/2  -> [0.2609, 8.625] covers
-    #   (5,4) q^ = 4    -> [0.6957, 23.0]  misses
-    #   P(N = 5, S5 = 4) = P(S4 = 3) p + P(S4 = 4) q = 4 p^4 q + p^4 q = 5 p^4 q = 0.02835
-    #   coverage = P(N = 4) + P(N = 5) - 0.02835 = 0.2646 + 0.56490 - 0.02835 = 0.80115
+    #   coverage = P(N = 4) + P(N = 5) = 0.4410
     result = op.pass_fail_exact(0.3, 5.75, 0.90, 2, n_max=5)
     assert result.stop_z == pytest.approx(Z90, abs=1e-6)
     assert result.distribution[:4] == pytest.approx([0, 0, 0, 0], abs=1e-15)
     assert result.distribution[4] == pytest.approx(0.2646, abs=1e-12)
-    assert result.distribution[5] == pytest.approx(0.56490, abs=1e-12)
-    assert result.beyond == pytest.approx(0.17050, abs=1e-12)
-    assert result.coverage == pytest.approx(0.80115, abs=1e-12)
-    assert result.expected_units == pytest.approx((4 * 0.2646 + 5 * 0.56490) / 0.82950, abs=1e-12)
-    # quantiles of N: P(N <= 4) = 0.2646 >= 0.05; P(N <= 5) = 0.8295 >= 0.5 but < 0.95
-    assert result.quantiles == {0.05: 4.0, 0.5: 5.0, 0.95: math.inf}
+    assert result.distribution[5] == pytest.approx(0.1764, abs=1e-12)
+    assert result.beyond == pytest.approx(0.5590, abs=1e-12)
+    assert result.coverage == pytest.approx(0.4410, abs=1e-12)
+    assert result.expected_units == pytest.approx((4 * 0.2646 + 5 * 0.1764) / 0.4410, abs=1e-12)
+    # quantiles of N: P(N <= 4) = 0.2646 >= 0.05; P(N <= 5) = 0.4410 < 0.5
+    assert result.quantiles == {0.05: 4.0, 0.5: math.inf, 0.95: math.inf}
+
+
+def test_the_rule_uses_the_plain_share_not_the_regularized_one():
+    # Worked by hand (common practice, no published source): d = 5 at 90 %, B = (1.644854 / ln 5)^2
+    # = (1.644854 / 1.609438)^2 = 1.0445. After 100 units with one beyond the threshold the plain
+    # share gives S (n - S) / n = 0.99 < B: continue. The regularized p~ = 1.5 / 101 would give
+    # n p~ (1 - p~) = 1.463 >= B and stop at the first exceedance.
+    statistics = SufficientStatistics(n=np.array([100, 100, 4]), sum_x=np.zeros(3), log_ratio=np.zeros(3),
+                                      exceedances=np.array([1, 2, 2]))
+    # S = 2 of 100: 2 * 98 / 100 = 1.96 >= B -> STOP; S = 2 of 4: 2 * 2 / 4 = 1 < B -> continue
+    assert rule.stops(statistics, 1.0, 5.0, 0.90, 2, "pass-fail").tolist() == [False, True, False]
+    assert rule.rule_sigma2(statistics, 1.0, "pass-fail") == pytest.approx([100 ** 2 / 99, 100 ** 2 / 196, 4.0])
+    # while every unit is on one side σ̂² stays finite (p~) and the rule goes on
+    one_side = SufficientStatistics(n=np.array([50, 50]), sum_x=np.zeros(2), log_ratio=np.zeros(2),
+                                    exceedances=np.array([0, 50]))
+    p_tilde = 0.5 / 51
+    assert rule.rule_sigma2(one_side, 1.0, "pass-fail") == pytest.approx([1 / (p_tilde * (1 - p_tilde))] * 2)
+    assert not rule.stops(one_side, 1.0, 1.0001, 0.5, 2, "pass-fail").any()
 
 
 def straightforward_propagation(p, accuracy, confidence, pilot, n_max, check_every=1):
@@ -90,6 +105,38 @@ def straightforward_propagation(p, accuracy, confidence, pilot, n_max, check_eve
         running = np.where(stop, 0.0, running)
         running = np.concatenate([running * (1 - p), [0.0]]) + np.concatenate([[0.0], running * p])
     return distribution, coverage, running.sum()
+
+
+def test_ties_on_the_lattice_are_decided_by_the_closed_interval():
+    # At p = 1/100 and d = 2 the interval end q^/d or q^ d equals q = 1/99 exactly at states such
+    # as (n, S) = (101, 2) (q^ = 2/99) and (199, 1) (q^ = 1/198); the closed interval covers them.
+    # Check value: the plain full-grid propagation with every covered/not-covered decision made
+    # in exact rational arithmetic (fractions), 1/100 <= ... by the interval's definition.
+    from fractions import Fraction
+
+    p, d = Fraction(1, 100), Fraction(2)
+    q = p / (1 - p)
+    pilot, n_max = 2, 4200
+    running = stats.binom.pmf(np.arange(pilot + 1), pilot, 0.01)
+    coverage = 0.0
+    ties = 0
+    for n in range(pilot, n_max + 1):
+        k = np.flatnonzero(running > 0)   # states of probability 0 add nothing
+        statistics = SufficientStatistics(n=np.full(k.size, n), sum_x=np.zeros(k.size),
+                                          log_ratio=np.zeros(k.size), exceedances=k)
+        stop = np.zeros(n + 1, bool)
+        stop[k] = rule.stops(statistics, 1.0, 2.0, 0.90, pilot, "pass-fail")
+        for s in np.flatnonzero(stop):
+            odds = Fraction(int(s), int(n - s))
+            ties += odds / d == q or odds * d == q
+            if odds / d <= q <= odds * d:
+                coverage += running[s]
+        running = np.where(stop, 0.0, running)
+        running = np.concatenate([running * 0.99, [0.0]]) + np.concatenate([[0.0], running * 0.01])
+    assert ties > 0
+    result = op.pass_fail_exact(0.01, 2.0, 0.90, pilot)
+    assert result.coverage == pytest.approx(coverage, abs=1e-10)
+    assert result.coverage == pytest.approx(0.894407, abs=5e-7)
 
 
 @pytest.mark.parametrize("p, accuracy, pilot, n_max, check_every", [
@@ -189,8 +236,8 @@ def test_bad_plans_are_refused():
 
 
 def test_pass_fail_calibration_is_the_smallest_inflation():
-    # p = 0.1, d = 2, pilot 5: the exact coverage at z is below 95 % (0.937)
-    evaluate = lambda z: op.pass_fail_exact(0.1, 2.0, 0.95, 5, stop_z=z)  # noqa: E731
+    # p = 0.05, d = 2, pilot 5: the exact coverage at z is below 95 % (0.946)
+    evaluate = lambda z: op.pass_fail_exact(0.05, 2.0, 0.95, 5, stop_z=z)  # noqa: E731
     calibration = op.calibrate(evaluate, 0.95)
     assert calibration.reached
     assert calibration.at_z.coverage < 0.95
@@ -209,7 +256,7 @@ def test_pass_fail_calibration_is_the_smallest_inflation():
 
 
 def test_calibration_when_nominal_is_already_reached():
-    calibration = op.calibrate(lambda z: op.pass_fail_exact(0.3, 1.5, 0.95, 10, stop_z=z), 0.95)
+    calibration = op.calibrate(lambda z: op.pass_fail_exact(0.1, 2.0, 0.95, 5, stop_z=z), 0.95)
     assert calibration.at_z.coverage >= 0.95
     assert calibration.z_calibrated == pytest.approx(calibration.z)
     assert calibration.extra_units == 0

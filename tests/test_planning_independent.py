@@ -1,8 +1,9 @@
 """Planning figures against computations written out in the test, not against the package.
 
 * pass-fail: an exact propagation over the states (n, S), with the rule of
-  METHOD.md §5 coded here from the formulas (p̃ = (S + ½)/(n + 1), no stop
-  while S is 0 or n) and the coverage of the §2 interval, compared with
+  METHOD.md §5 coded here from the formulas (the plain share S/n in σ̂², no
+  stop while S is 0 or n; docs/method.md) and the coverage of the §2
+  interval, closed, compared with
   ``pass_fail_exact`` and the planning formulas;
 * known-shape: a Monte Carlo simulation of the rule coded here with scipy's
   incomplete gamma, compared with ``simulate`` within their Monte Carlo
@@ -13,6 +14,7 @@
 from __future__ import annotations
 
 import math
+from fractions import Fraction
 
 import numpy as np
 import pytest
@@ -31,7 +33,9 @@ def boundary(accuracy, confidence):
 def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every=1):
     """P(N = n) for n <= n_max, P(N > n_max) and the coverage, by propagating P(n, S) unit by unit."""
     factor = boundary(accuracy, confidence)
-    target = math.log(p / (1 - p))
+    # p = a/b and d = e/f as the decimals written, so that the interval's ends are compared exactly
+    a, b = Fraction(repr(p)).as_integer_ratio()
+    e, f = Fraction(repr(accuracy)).as_integer_ratio()
     running = np.array([1.0])  # P(S = k, still on test) after n units, k = 0..n
     distribution = np.zeros(n_max + 1)
     coverage = 0.0
@@ -40,12 +44,12 @@ def pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every=1)
         if n < pilot or (n - pilot) % check_every:
             continue
         k = np.arange(n + 1)
-        p_tilde = (k + 0.5) / (n + 1)
-        stop = (n >= factor / (p_tilde * (1 - p_tilde))) & (k > 0) & (k < n)
+        # σ̂² = 1 / (p̂ (1 - p̂)), p̂ = k / n: stop when n >= factor σ̂², i.e. k (n - k) >= factor n
+        stop = (k * (n - k) >= factor * n) & (k > 0) & (k < n)
         distribution[n] = running[stop].sum()
-        with np.errstate(divide="ignore"):
-            log_odds = np.log(k) - np.log(n - k)
-        covered = stop & (np.abs(log_odds - target) <= math.log(accuracy))
+        # q/d <= q^ <= q d with q = a/(b - a), q^ = k/(n - k), d = e/f, in whole numbers
+        inside = (a * (n - k) * f <= k * (b - a) * e) & (k * (b - a) * f <= e * a * (n - k))
+        covered = stop & inside
         coverage += running[covered].sum()
         running = np.where(stop, 0.0, running)
     return distribution, running.sum(), coverage

@@ -366,13 +366,13 @@ count of valves tested catches up with it.
 
 After valve {s.stop} the column reads `STOP`. The rule stops at the first n ≥
 {m} with n ≥ (z / ln d)² σ̂²ₙ, where z = {z:.4f} for {percent}, so
-(z / ln {d})² = {s.boundary:.2f}, and for pass-fail σ̂²ₙ = 1 / (p̃ (1 − p̃)) with
-p̃ = (S + ½) / (n + 1):
+(z / ln {d})² = {s.boundary:.2f}, and for pass-fail σ̂²ₙ = 1 / (p̂ (1 − p̂)) with
+the plain share p̂ = S / n:
 
-- after valve {s.stop - 1}, with S = {s.beyond_before}: p̃ = {s.beyond_before + 0.5:g} / {s.stop} =
-  {(s.beyond_before + 0.5) / s.stop:.4f} and (z / ln d)² σ̂² = {s.needed_before:.1f} > {s.stop - 1}: continue;
-- after valve {s.stop}, with S = {beyond}: p̃ = {beyond + 0.5:g} / {s.stop + 1} =
-  {(beyond + 0.5) / (s.stop + 1):.4f} and (z / ln d)² σ̂² = {s.needed_at_stop:.1f} ≤ {s.stop}: stop.
+- after valve {s.stop - 1}, with S = {s.beyond_before}: p̂ = {s.beyond_before} / {s.stop - 1} =
+  {s.beyond_before / (s.stop - 1):.4f} and (z / ln d)² σ̂² = {s.needed_before:.1f} > {s.stop - 1}: continue;
+- after valve {s.stop}, with S = {beyond}: p̂ = {beyond} / {s.stop} =
+  {beyond / s.stop:.4f} and (z / ln d)² σ̂² = {s.needed_at_stop:.1f} ≤ {s.stop}: stop.
 
 Testing ends with valve {s.stop}. (The demo's invented log runs on to valve
 {_units(len(s.log))}; in a real test there are no rows after the stop. Here

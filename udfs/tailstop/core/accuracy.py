@@ -26,7 +26,11 @@ __all__ = [
     "probability_interval",
 ]
 
-# n* that is an integer up to rounding error is not pushed to the next unit.
+# n* that is an integer up to rounding error is not pushed to the next unit. The slack is a
+# number of units, not a fraction of n*: a fraction would grow with n* past the fractional
+# part itself (n* = 4,548,484,529.96 would round down). Where n* is so large that its own
+# rounding error exceeds the slack, an n* that is an integer in exact arithmetic may come out
+# one unit high; that errs on the side of more units, never fewer.
 _CEIL_SLACK = 1e-9
 
 
@@ -44,9 +48,14 @@ def units_for_accuracy(sigma2, accuracy, confidence):
 
 
 def whole_units(n_star):
-    """ceil(n*), ignoring a relative excess of 1e-9 that is only rounding error."""
+    """ceil(n*), ignoring an excess of 1e-9 units over a whole number that is only rounding error.
+
+    Never below n*: ceil(n* - 1e-9) >= n* whenever the fractional part of n* exceeds 1e-9, and at
+    least 1 unit for any n* > 0.
+    """
     n_star = np.asarray(n_star, dtype=float)
-    return np.ceil(n_star * (1.0 - _CEIL_SLACK))
+    with np.errstate(invalid="ignore"):
+        return np.where(n_star > 0, np.maximum(np.ceil(n_star - _CEIL_SLACK), 1.0), np.ceil(n_star))
 
 
 def accuracy_for_units(sigma2, units, confidence):

@@ -5,10 +5,14 @@ and stops at the first n with n >= (z / log d)² σ̂²_n.
 
 Degenerate prefixes never stop:
 
-* pass-fail: σ̂² uses the regularized plug-in p̃ = (S + ½) / (n + 1) (S the
-  number of units beyond the threshold), which is finite for every S; in
-  addition the rule never stops while every unit so far is on one side of
-  the threshold (S = 0 or S = n);
+* pass-fail: σ̂² = 1 / (p̂ (1 - p̂)) with the plain share p̂ = S / n (S the
+  number of units beyond the threshold) while there are units on both
+  sides; while every unit so far is on one side (S = 0 or S = n) it uses the
+  regularized plug-in p̃ = (S + ½) / (n + 1), which is finite, and the rule
+  never stops there. The regularization only keeps σ̂² defined: using p̃ at
+  every n instead lets the rule stop at the first exceedance when the
+  accuracy is loose, and the real coverage then falls far below nominal
+  (docs/method.md, "Why the plain share");
 * fitted-shape: while all values so far are equal the ML shape does not
   exist (σ̂² is NaN) and the rule continues;
 * any σ̂² that is NaN or infinite means "continue".
@@ -30,17 +34,25 @@ __all__ = ["MIN_PILOT", "rule_sigma2", "boundary_factor", "is_check_point", "sto
 MIN_PILOT = 2
 
 
-def regularized_pass_fail_sigma2(n, exceedances):
-    """σ̃² = 1 / (p̃ (1 - p̃)) with p̃ = (S + ½) / (n + 1)."""
+def pass_fail_rule_sigma2(n, exceedances):
+    """σ̂² of the pass-fail rule: n² / (S (n - S)) while both sides have units, else 1 / (p̃ (1 - p̃)).
+
+    p̃ = (S + ½) / (n + 1) is used only while every unit is on one side
+    (S = 0 or S = n), where the plain share gives an infinite σ̂²; the rule
+    never stops there either way.
+    """
     n = np.asarray(n, dtype=float)
-    p_tilde = (np.asarray(exceedances, dtype=float) + 0.5) / (n + 1.0)
-    return 1.0 / (p_tilde * (1.0 - p_tilde))
+    s = np.asarray(exceedances, dtype=float)
+    one_sided = (s <= 0) | (s >= n)
+    p_tilde = (s + 0.5) / (n + 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(one_sided, 1.0 / (p_tilde * (1.0 - p_tilde)), n * n / (s * (n - s)))
 
 
 def rule_sigma2(statistics, threshold, method, shape=None, model=DEFAULT_MODEL):
     """σ̂²_n as the stopping rule uses it, for every set of statistics (NaN = undefined)."""
     if method == "pass-fail":
-        return regularized_pass_fail_sigma2(statistics.n, statistics.exceedances)
+        return pass_fail_rule_sigma2(statistics.n, statistics.exceedances)
     with np.errstate(all="ignore"):
         return np.asarray(estimate_from_statistics(statistics, threshold, method, shape, model).sigma2, dtype=float)
 

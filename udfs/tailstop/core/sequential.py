@@ -51,7 +51,7 @@ from .models import DEFAULT_MODEL, get_model
 from .models.gamma.fit import shape_from_log_ratio
 from .models.gamma.tail import log_density_term, tail_probability_standard
 from .models.gamma.variance import sigma2_fitted_shape, sigma2_known_shape
-from .rule import MIN_PILOT, boundary_factor, regularized_pass_fail_sigma2
+from .rule import MIN_PILOT, boundary_factor, pass_fail_rule_sigma2
 
 __all__ = [
     "STATE_NAMES",
@@ -215,7 +215,7 @@ def decision_column(lifetimes, threshold, accuracy, confidence, pilot, method="p
     -----
     Purely sequential fixed-accuracy estimation (Banerjee & Mukhopadhyay
     2016; Chow & Robbins 1965). σ̂²_n is ``rule.rule_sigma2``: for pass-fail
-    the regularized p̃ = (S + ½)/(n + 1), and no stop while S is 0 or n.
+    1/(p̂(1-p̂)) with the plain share p̂ = S/n, and no stop while S is 0 or n.
     """
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
     factor = _check_plan(accuracy, confidence, pilot, check_every)
@@ -363,7 +363,7 @@ def _ruled_out(n, factor, floor, margin=_MARGIN):
 
 
 class _PassFail:
-    """σ̃² = 1/(p̃(1-p̃)) in closed form: every check point is cheap, no bound needed."""
+    """σ̂² = n²/(S(n-S)) in closed form: every check point is cheap, no bound needed."""
 
     @staticmethod
     def running_sums(x, threshold, survivors):
@@ -375,7 +375,7 @@ class _PassFail:
     @staticmethod
     def stops(exceedances, n, factor, threshold, shape):
         s = exceedances[n - 1]
-        sigma2 = regularized_pass_fail_sigma2(n, s)
+        sigma2 = pass_fail_rule_sigma2(n, s)
         return _enough(n, factor, sigma2) & (s > 0) & (s < n)
 
     @staticmethod
@@ -387,7 +387,7 @@ class _PassFail:
         if s == n:
             raise ValueError("every unit so far has outlasted the threshold; the units needed cannot be "
                              "estimated until one fails at or below it")
-        return float(regularized_pass_fail_sigma2(n, s))
+        return float(pass_fail_rule_sigma2(n, s))
 
 
 class _KnownShape:

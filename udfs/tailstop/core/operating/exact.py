@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import math
+from fractions import Fraction
 
 import numpy as np
 from scipy import stats
@@ -165,14 +166,37 @@ class _PassFailStopSet:
 
 
 def _pass_fail_covers(n, k, p, accuracy):
-    """Does the final pass-fail interval at (n, k) contain p? (methods + accuracy, as the formulas compute it)."""
+    """Does the final pass-fail interval at (n, k) contain p? Ties decided exactly.
+
+    The interval [q̂/d, q̂·d] (q̂ = k/(n-k)) is closed: p is covered when
+    q/d <= q̂ <= q·d, q = p/(1-p). States where q̂ lies within a relative 1e-9
+    of an end are decided in exact rational arithmetic, with p and d read as
+    the decimals they are written as (the shortest decimal that reads back as
+    the same number, so 0.01 is one hundredth), instead of by the rounding of
+    the logs.
+    """
     if n.size == 0:
         return np.zeros(0, bool)
+    n = np.asarray(n, dtype=np.int64)
+    k = np.asarray(k, dtype=np.int64)
     statistics = SufficientStatistics(n=n, sum_x=np.zeros(n.shape), log_ratio=np.zeros(n.shape), exceedances=k)
     with np.errstate(divide="ignore", invalid="ignore"):
         log_odds = estimate_from_statistics(statistics, 1.0, "pass-fail").log_odds
-    interval = _accuracy.probability_interval(log_odds, accuracy)
-    return (interval.low <= p) & (p <= interval.high)
+        interval = _accuracy.probability_interval(log_odds, accuracy)
+        covered = (interval.low <= p) & (p <= interval.high)
+        log_d = math.log(accuracy)
+        true_log_odds = math.log(p) - math.log1p(-p)
+        distance = np.minimum(np.abs(log_odds - log_d - true_log_odds), np.abs(log_odds + log_d - true_log_odds))
+    near = np.flatnonzero((distance < 1e-9) & (k > 0) & (k < n))
+    if near.size:
+        covered = covered.copy()
+        exact_p, exact_d = Fraction(repr(float(p))), Fraction(repr(float(accuracy)))
+        for i in near:
+            units, beyond = int(n[i]), int(k[i])
+            below = beyond * (1 - exact_p)       # q̂ ∝ k (1-p) against q ∝ p (n-k)
+            above = exact_p * (units - beyond)
+            covered[i] = above <= exact_d * below and below <= exact_d * above
+    return covered
 
 
 def _distribution_figures(distribution):
