@@ -226,10 +226,9 @@ def test_a_suspension_below_the_threshold_takes_the_product_limit_estimate():
     assert decisions == ["PILOT", "CONTINUE", "CONTINUE", "CONTINUE"]
     assert decisions == per_row(rows, 1000.0, 1.5, 0.95, 2)
     # check value: by hand, product limit at 1000: one failure (700) among 4 at risk, Ŝ = 3/4;
-    # Greenwood G = 1/(4·3); σ̃² with n_e = (1-Ŝ)/(Ŝ G) = 4, p̃ = (3 + ½)/5 (product_limit.regularized_sigma2)
-    p_tilde = 3.5 / 5
+    # Greenwood G = 1/(4·3); σ̂² = n G / (1 - Ŝ)² = 4 · (1/12) / (1/16) = 16/3 (docs/method.md)
     factor = (1.959963984540054 / np.log(1.5)) ** 2
-    assert UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95) == int(np.ceil(factor / (p_tilde * (1 - p_tilde))))
+    assert UNITS_NEEDED_NOW(rows, 1000.0, 1.5, 0.95) == int(np.ceil(factor * 16 / 3))
     # a survivor at the threshold is a pass
     assert not is_message(STOP_DECISION([[700.0], ["1000+"]], 1000.0, 1.5, 0.95, 2))
 

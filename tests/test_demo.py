@@ -98,13 +98,12 @@ def test_rerun_keeps_identical_books_and_backs_up_an_edited_one(tmp_path, capsys
 
 def pass_fail_stop(lifetimes, threshold, accuracy, confidence, pilot):
     """METHOD.md §5 for pass-fail, written out plainly: the N at which the rule stops."""
-    # check value: METHOD.md §5 with p~ = (S + 1/2)/(n + 1); z from scipy.stats.norm
+    # check value: METHOD.md §5 with the plain share S/n in σ̂² (docs/method.md); z from scipy.stats.norm
     z = stats.norm.ppf(1 - (1 - confidence) / 2)
     beyond = 0
     for n, value in enumerate(lifetimes, start=1):
         beyond += value > threshold
-        p_tilde = (beyond + 0.5) / (n + 1)
-        if n >= pilot and 0 < beyond < n and n >= (z / math.log(accuracy)) ** 2 / (p_tilde * (1 - p_tilde)):
+        if n >= pilot and 0 < beyond < n and beyond * (n - beyond) >= (z / math.log(accuracy)) ** 2 * n:
             return n
     return None
 

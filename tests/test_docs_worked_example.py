@@ -64,12 +64,10 @@ def z_value():
 
 
 def pass_fail_stop(lifetimes):
-    """N of METHOD.md §5 for pass-fail, from scratch: p̃ = (S + ½)/(n + 1), no stop while S is 0 or n."""
+    """N of METHOD.md §5 for pass-fail, from scratch: the plain share S/n in σ̂², no stop while S is 0 or n."""
     n = np.arange(1, lifetimes.size + 1)
     s = np.cumsum(lifetimes > scenario.THRESHOLD)
-    p_tilde = (s + 0.5) / (n + 1)
-    boundary = (z_value() / math.log(scenario.ACCURACY)) ** 2 / (p_tilde * (1 - p_tilde))
-    stops = (n >= scenario.PILOT) & (n >= boundary) & (s > 0) & (s < n)
+    stops = (n >= scenario.PILOT) & (s * (n - s) >= (z_value() / math.log(scenario.ACCURACY)) ** 2 * n) & (s > 0) & (s < n)
     return int(n[np.argmax(stops)]) if stops.any() else None
 
 

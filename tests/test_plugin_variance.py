@@ -55,13 +55,13 @@ def test_pass_fail_plug_in_is_one_over_p_hat_q_hat():
                                                                  rel=1e-12)
 
 
-def test_pass_fail_rule_uses_the_regularized_plug_in():
+def test_pass_fail_rule_uses_the_plain_share():
     x = sample()
-    # check value: METHOD.md §5, p̃ = (S + ½)/(n + 1) = 5.5/13 in σ̃² = 1/(p̃(1 - p̃)) = 169/(5.5·7.5)
+    # check value: METHOD.md §5 and docs/method.md, the plain share p̂ = S/n = 5/12 in σ̂² = 1/(p̂(1 - p̂)) = 144/(5·7)
     needed = units_needed_now(x, THRESHOLD, 1.5, 0.95, "pass-fail")
-    assert needed.sigma2 == pytest.approx(169 / (5.5 * 7.5), rel=1e-14)
-    assert needed.needed == pytest.approx((z_value(0.95) / math.log(1.5)) ** 2 * 169 / (5.5 * 7.5), rel=1e-12)
-    whole = math.ceil((z_value(0.95) / math.log(1.5)) ** 2 * 169 / (5.5 * 7.5))
+    assert needed.sigma2 == pytest.approx(144 / (5 * 7), rel=1e-14)
+    assert needed.needed == pytest.approx((z_value(0.95) / math.log(1.5)) ** 2 * 144 / (5 * 7), rel=1e-12)
+    whole = math.ceil((z_value(0.95) / math.log(1.5)) ** 2 * 144 / (5 * 7))
     assert UNITS_NEEDED_NOW([[v] for v in x], THRESHOLD, 1.5, 0.95) == whole
     assert two_stage_plan(x, THRESHOLD, 1.5, 0.95, "pass-fail").total_units == max(12, whole)
 

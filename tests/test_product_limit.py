@@ -4,7 +4,7 @@ import pytest
 
 from tailstop.core.methods import estimate_tail
 from tailstop.core.product_limit import product_limit, regularized_sigma2
-from tailstop.core.rule import regularized_pass_fail_sigma2
+from tailstop.core.rule import pass_fail_rule_sigma2
 
 # Remission times (weeks) of the 6-MP group of Freireich et al. (1963), as Gehan (1965) lists them;
 # True marks a patient still in remission at that time (right-censored).
@@ -86,7 +86,7 @@ def test_without_suspension_below_the_threshold_it_is_the_share_beyond_exactly()
     assert float(estimate.survival) == k / n
     assert float(estimate.sigma2) == pytest.approx(n * n / (k * (n - k)), rel=1e-13)
     assert float(estimate.effective_units) == pytest.approx(n, rel=1e-13)
-    assert float(regularized_sigma2(estimate)) == pytest.approx(float(regularized_pass_fail_sigma2(n, k)),
+    assert float(regularized_sigma2(estimate)) == pytest.approx(float(pass_fail_rule_sigma2(n, k)),
                                                                  rel=1e-13)
 
 

@@ -12,8 +12,8 @@ just above n, and the rule must then go on. Both the vectorized rule
 are checked, through the core and through the cell formulas.
 
 The pass-fail cases need no search in σ̂²: with S beyond the threshold out of
-n = 2S units, p̃ = (S + ½)/(n + 1) = ½ and σ̃² = 1/(p̃(1 - p̃)) = 4 exactly
-(METHOD.md §5, hand computation), so the boundary is n = 4·(z / log d)², and
+n = 2S units, the share p̂ = S/n = ½ and σ̂² = 1/(p̂(1 - p̂)) = 4 exactly
+(METHOD.md §5 and docs/method.md, hand computation), so the boundary is n = 4·(z / log d)², and
 (z / log d)² = n / 4 is a power of two for n = 16.
 """
 from __future__ import annotations
@@ -68,7 +68,7 @@ def alternating(units):
 
 @pytest.fixture(scope="module")
 def exact_pass_fail():
-    # hand computation: n = 16, S = 8 gives σ̃² = 4, so the boundary is 16 when (z / log d)² = 4
+    # hand computation: n = 16, S = 8 gives σ̂² = 4, so the boundary is 16 when (z / log d)² = 4
     plan = boundary_plan(4.0, 16.0)
     assert plan is not None
     accuracy, confidence = plan
@@ -82,11 +82,11 @@ def test_pass_fail_rule_stops_exactly_on_the_boundary(exact_pass_fail):
     log = np.array(alternating(24))
     statistics = SufficientStatistics.running(log, THRESHOLD)
     on = stops(statistics, THRESHOLD, accuracy, confidence, 2, "pass-fail")
-    # hand computation: before unit 16, σ̃² >= 4 (p̃(1 - p̃) <= 1/4) puts the boundary at >= 16 > n
+    # hand computation: before unit 16, σ̂² >= 4 (p̂(1 - p̂) <= 1/4) puts the boundary at >= 16 > n
     assert np.flatnonzero(on)[0] == 15
     below = stops(statistics, THRESHOLD, step_down(accuracy), confidence, 2, "pass-fail")
     assert not below[15]
-    # hand computation: n = 17 with S = 8: p̃ = 8.5/18, σ̃² = 1/(p̃(1-p̃)) = 4.0125, boundary 16.05 < 17
+    # hand computation: n = 17 with S = 8: p̂ = 8/17, σ̂² = 289/(8·9) = 4.0139, boundary 16.06 < 17
     assert np.flatnonzero(below)[0] == 16
 
 
@@ -117,7 +117,7 @@ def test_pass_fail_formulas_stop_exactly_on_the_boundary(exact_pass_fail):
 
 def test_two_stage_total_on_the_boundary(exact_pass_fail):
     accuracy, confidence = exact_pass_fail
-    # hand computation: a pilot of 8 with S = 4 gives p̃ = 4.5/9 = ½, σ̃² = 4, total (z/log d)² · 4 = 16 exactly
+    # hand computation: a pilot of 8 with S = 4 gives p̂ = 4/8 = ½, σ̂² = 4, total (z/log d)² · 4 = 16 exactly
     pilot = alternating(8)
     plan = two_stage_plan(pilot, THRESHOLD, accuracy, confidence, "pass-fail")
     assert (plan.sigma2, plan.total_units, plan.final_batch) == (4.0, 16, 8)

@@ -252,8 +252,8 @@ class CensoredRule:
 
     Check points before the first censored suspension are left to the
     evaluator of the complete log (``plain``), so their decisions are the
-    very same; after it σ̂² is the censored one: the regularized product-limit
-    σ̃² for pass-fail (``product_limit.regularized_sigma2``; the rule never
+    very same; after it σ̂² is the censored one: the product-limit σ̂² for
+    pass-fail (``product_limit.regularized_sigma2``; the rule never
     stops while no unit has failed at or below the threshold or none is seen
     beyond it), the observed-information σ̂² for the gamma methods (the rule
     continues while there are too few failures).

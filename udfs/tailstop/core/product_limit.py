@@ -111,19 +111,21 @@ class ProductLimit:
 
 
 def regularized_sigma2(estimate: ProductLimit):
-    """σ̃² for the stopping rule: the pass-fail regularization carried to a censored log.
+    """σ̂² for the stopping rule on a censored log: the pass-fail rule's σ̂² carried over.
 
     A complete log of n_e units with n_e Ŝ of them beyond c has the same Ŝ
-    and the same Greenwood variance; its regularized plug-in
-    p̃ = (n_e Ŝ + ½)/(n_e + 1) gives σ̃² = (n / n_e) / (p̃ (1 - p̃)). With no
-    suspension below c, n_e = n and this is the pass-fail σ̃² itself (the
-    rule uses that formula there, so the decisions are the same bits).
-    NaN where Ŝ is 0 or 1 (the rule never stops there).
+    and the same Greenwood variance; its plain share Ŝ gives
+    σ̂² = (n / n_e) / (Ŝ (1 - Ŝ)) = n G / (1 - Ŝ)², the delta-method σ̂² of the
+    estimate itself (the pass-fail rule uses the plain share S / n too, once
+    there are units on both sides: docs/method.md). With no suspension below
+    c, n_e = n and this is the pass-fail σ̂² (the rule uses that formula there,
+    so the decisions are the same bits). NaN where Ŝ is 0 or 1 (the rule
+    never stops there).
     """
     n_e = estimate.effective_units
     with np.errstate(divide="ignore", invalid="ignore"):
-        p_tilde = (n_e * estimate.survival + 0.5) / (n_e + 1.0)
-        sigma2 = estimate.units / n_e / (p_tilde * (1.0 - p_tilde))
+        share = estimate.survival
+        sigma2 = estimate.units / n_e / (share * (1.0 - share))
     return np.where(estimate.defined, sigma2, np.nan)
 
 
