@@ -27,6 +27,7 @@ from formulas.tokens.operand import Error, XlError
 from openpyxl.utils.cell import range_boundaries
 from openpyxl.worksheet.formula import ArrayFormula
 
+from . import filled_down
 from .cached_values import EXCEL_ERRORS, CellError, remember, save_with_cached_values
 from .cell_check import rounds_on_save
 from .package import Limits, WorkbookRefused
@@ -160,15 +161,42 @@ def evaluate_workbook(book_path):
         Python values, ``None`` for empty and ``CellError`` for errors.
     """
     register_formulas()
+    path = str(Path(book_path).absolute())
     with _quiet_progress():
-        model = formulas.ExcelModel().loads(str(Path(book_path).absolute())).finish()
-        solution = model.calculate()
+        results = _calculate_with_filled_down_columns(path)
+        if results is None:
+            results = formulas.ExcelModel().loads(path).finish().calculate(), {}
+    solution, filled = results
     computed = {}
     for key, ranges in solution.items():
         match = _ENGINE_KEY.match(str(key))
         if match and hasattr(ranges, "value"):
             computed[(match["sheet"].upper(), match["cell"])] = _from_engine(ranges.value)
+    for key, value in filled.items():
+        match = _ENGINE_KEY.match(key)
+        computed[(match["sheet"].upper(), match["cell"])] = _from_engine(value)
     return computed
+
+
+def _calculate_with_filled_down_columns(path):
+    """The engine's results, and the values of the tailstop columns filled down a log (``filled_down``).
+
+    Such a column is taken out of the engine's dependency graph and computed
+    in one pass; None when one turns out to read its own cells (the book is
+    then computed cell by cell).
+    """
+    model = formulas.ExcelModel()
+    book, context = model.add_book(path)
+    columns = filled_down.take_out(book, UDF_PREFIXES, _computes_filled_down)
+    model.pushes(*book.worksheets, context=context)
+    solution = model.finish().calculate()
+    if not columns:
+        return solution, {}
+    return filled_down.put_back(model, solution, columns, context, _tailstop_formulas(), _to_cells, _to_engine)
+
+
+def _computes_filled_down(name):
+    return importlib.import_module("tailstop.sheet.filled_down").takes_a_log_first(name)
 
 
 @contextlib.contextmanager
