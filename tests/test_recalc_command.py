@@ -46,3 +46,14 @@ def test_recalc_refuses_a_file_that_is_not_a_workbook(tmp_path, capsys):
     assert main(["recalc", str(fake)]) == 1
     message = capsys.readouterr().err
     assert message.startswith("tailstop recalc:") and "Traceback" not in message
+
+
+def test_in_place_and_out_together_are_refused(tmp_path, capsys):
+    book = make_book(tmp_path / "check.xlsx")
+    before = book.read_bytes()
+    other = tmp_path / "other.xlsx"
+    assert main(["recalc", str(book), "--in-place", "--out", str(other)]) == 1
+    assert "either --out or --in-place" in capsys.readouterr().err
+    # nothing written anywhere: the book is byte for byte what it was, no other file, no backup
+    assert book.read_bytes() == before
+    assert sorted(path.name for path in tmp_path.iterdir()) == ["check.xlsx"]

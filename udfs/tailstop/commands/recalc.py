@@ -35,6 +35,9 @@ def run(args):
 
     if args.no_backup and not args.in_place:
         raise ValueError("--no-backup goes with --in-place")
+    if args.in_place and args.out is not None:
+        print("tailstop recalc: give either --out or --in-place, not both", file=sys.stderr)
+        return 1
     target = args.book if args.in_place else (args.out or default_output(args.book))
     evaluate = None
     if args.engine == "libreoffice":
