@@ -177,3 +177,28 @@ def test_junk_never_raises(observations, a, b, c, d):
         assert isinstance(result, (int, float, list)) or is_message(result), (name, args, result)
         if isinstance(result, float):
             assert math.isfinite(result)
+
+
+def test_python_callers_may_name_the_arguments(fixture_log):
+    path, values = fixture_log
+    column = range_values(path, "Log", "B2:B61")
+    lifetimes = np.array([v for v in values if v is not None])
+    c = 1200.0
+    # check value: scipy.stats.gamma.fit (floc=0) then the survival function — a general-purpose reference
+    a, _, s = stats.gamma.fit(lifetimes, floc=0)
+    named = TAIL_PROB_EST(column, c, method="fitted-shape")
+    assert named == pytest.approx(stats.gamma.sf(c, a, scale=s), rel=1e-6)
+    assert TAIL_PROB_EST(observations=column, threshold=c, method="fitted-shape") == named
+    # the same values by name and by position, for a formula with a shape and one with a range result
+    assert TAIL_PROB_EST(column, c, shape=2.0, method="known-shape") == TAIL_PROB_EST(column, c, "known-shape", 2.0)
+    assert TAIL_PROB_BOUNDS(column, c, accuracy=1.5, method="fitted-shape") == TAIL_PROB_BOUNDS(
+        column, c, 1.5, "fitted-shape")
+    # bad input given by name is still answered in the cell's way
+    assert TAIL_PROB_EST(column, c, method="no such method").startswith("#TAILSTOP!")
+
+
+def test_a_wrong_argument_name_is_a_python_error():
+    with pytest.raises(TypeError, match="methd"):
+        TAIL_PROB_EST([[1.0], [2.0]], 1.5, methd="pass-fail")
+    with pytest.raises(TypeError):
+        TAIL_PROB_EST([[1.0], [2.0]], 1.5, "pass-fail", method="pass-fail")

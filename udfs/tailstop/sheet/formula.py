@@ -90,10 +90,14 @@ def formula(*, ranges=(), returns="number", **argument_help):
             returns=returns,
         )
 
+        signature = inspect.signature(body)
+
         @functools.wraps(body)
-        def cell_safe(*args):
+        def cell_safe(*args, **keywords):
+            if keywords:  # a Python caller: a wrong name is a TypeError, as for any Python function
+                signature.bind(*args, **keywords)
             try:
-                return to_cells(body(*args))
+                return to_cells(body(*args, **keywords))
             except InputError as problem:
                 return f"{ERROR_PREFIX} {problem}"
             except (ValueError, ArithmeticError) as problem:
