@@ -346,7 +346,7 @@ def test_cells_the_method_cannot_use(tmp_path, capsys, value, reason):
     (["--column", "Z"], "'Bench log'!Z2 and the rows below are empty"),
     (["--column", "Lifetime"], "no column 'Lifetime'"),
     (["--column", "D", "--sheet", "Log"], "has no sheet 'Log'; its sheets are 'Notes', 'Bench log', 'Summary'"),
-    (["--column", "A", "--sheet", "Notes"], "Notes!A2 holds text '  leading spaces ...'"),
+    (["--column", "A", "--sheet", "Notes"], "Notes!A5 holds TRUE, not a number"),
     (["--column", "D", "--method", "known-shape"], "known-shape needs the gamma shape (--shape)"),
     (["--column", "D", "--confidence", "95"], "for 95 % enter 0.95"),
     (["--column", "D", "--no-backup"], "--no-backup applies to --in-place only"),
@@ -609,3 +609,14 @@ def test_a_number_openpyxl_cannot_write_back_is_refused_by_the_check(tmp_path):
     with pytest.raises(AnnotateRefused, match=r"Sheet!C5 was inf, is now empty\nNothing was written"):
         annotate(tmp_path / "huge.xlsx", column="A", plan=plan())
     assert not default_output(tmp_path / "huge.xlsx").exists()
+
+
+def test_a_log_with_no_unit_beyond_the_threshold_says_so_in_words(tmp_path, capsys):
+    lifetimes = [round(100.0 + 37.0 * unit, 1) for unit in range(30)]  # all below 1500
+    path = rich_log(tmp_path / "early.xlsx", lifetimes)
+    code, out, err = run_cli(capsys, path, "--column", "D", "--threshold", 1500, "--accuracy", 1.5, "--pilot", 10)
+    assert code == 0 and err == ""
+    line, = [line for line in out.splitlines() if line.startswith("  estimate:")]
+    # pass-fail: no unit of 30 beyond 1500, so the share is 0 (counted by hand) and no interval exists
+    assert line.startswith("  estimate: P(life > 1500) = 0, odds 0; no bounds yet: no unit exceeded the threshold")
+    assert "#TAILSTOP!" not in out and " .. -" not in out

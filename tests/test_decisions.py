@@ -429,6 +429,17 @@ def test_check_points_follow_check_every():
 # ----------------------------------------------------------------- reading a log column
 
 
+def _is_caption(cell):
+    """Text that is not a number, a survivor mark (…+), an error text or a formula."""
+    if not isinstance(cell, str) or cell.strip().endswith("+") or cell.strip().upper() == "#N/A":
+        return False
+    try:
+        float(cell)
+    except ValueError:
+        return not cell.startswith("=")
+    return False
+
+
 def _read_cell_by_cell(column):
     """A plain reading of a log column, cell by cell: (values, survivors, rows, first bad row, filled rows)."""
     values, survivors, rows = [], [], []
@@ -436,9 +447,13 @@ def _read_cell_by_cell(column):
     for r, cell in enumerate(column):
         if not (cell is None or (isinstance(cell, str) and not cell.strip())):
             filled = r + 1
+    units_seen = False
     for r, cell in enumerate(column[:filled]):
         if cell is None or (isinstance(cell, str) and not cell.strip()):
             continue
+        if not units_seen and _is_caption(cell):
+            continue  # a header above the first unit
+        units_seen = True
         survivor = isinstance(cell, str) and cell.strip().endswith("+")
         text = cell.strip()[:-1] if survivor else cell
         try:

@@ -98,9 +98,7 @@ def summary(result) -> str:
     suspended = analysis.suspended_used
     lines.append(f"  units used: {analysis.units_used} ({analysis.units_used - suspended} failed, {suspended} "
                  f"suspended)")
-    lines.append(f"  estimate: P(life > {analysis.plan.threshold:g}) = {_figure(figures['estimate'])}, "
-                 f"bounds {_figure(figures['p_low'])} .. {_figure(figures['p_high'])}; odds "
-                 f"{_figure(figures['odds'])} ({_figure(figures['odds_low'])} .. {_figure(figures['odds_high'])})")
+    lines.append(_estimate_line(analysis.plan.threshold, figures))
     for note in analysis.notes:
         lines.append(f"  warning: {note}" if note != "no warnings for this log and method" else f"  {note}")
     column = f"{sheet_reference(log.sheet_title)}!{get_column_letter(result.decision_column)}"
@@ -118,6 +116,29 @@ def summary(result) -> str:
     for loss in result.losses:
         lines.append(f"  given up (--allow-lossy): {loss}")
     return "\n".join(lines)
+
+
+def _estimate_line(threshold, figures):
+    """The summary's estimate in words; a figure the formulas could not give is said as a sentence."""
+    start = f"  estimate: P(life > {threshold:g})"
+    if _is_message(figures["estimate"]):
+        return f"{start}: no estimate - {_message(figures['estimate'])}"
+    line = f"{start} = {_figure(figures['estimate'])}"
+    odds = f"odds {_figure(figures['odds'])}" if not _is_message(figures["odds"]) else "no odds"
+    bounds = [figures[key] for key in ("p_low", "p_high", "odds_low", "odds_high")]
+    problem = next((value for value in bounds if _is_message(value)), None)
+    if problem is not None:
+        return f"{line}, {odds}; no bounds yet: {_message(problem)}"
+    return (f"{line}, bounds {_figure(bounds[0])} .. {_figure(bounds[1])}; {odds} "
+            f"({_figure(bounds[2])} .. {_figure(bounds[3])})")
+
+
+def _is_message(value):
+    return isinstance(value, str) and value.startswith(cells.ERROR_PREFIX)
+
+
+def _message(value):
+    return value.removeprefix(cells.ERROR_PREFIX).strip()
 
 
 def _figure(value):

@@ -86,6 +86,10 @@ def describe(value) -> str:
         return f"holds {'TRUE' if value else 'FALSE'}, not a number"
     if isinstance(value, (_dt.datetime, _dt.date, _dt.time, _dt.timedelta)):
         return "holds a date or time, not a number of hours or cycles"
+    if isinstance(value, str) and is_formula_text(value):
+        shown = value if len(value) <= 40 else value[:37] + "..."
+        return (f"holds a formula ({shown}); a summary row inside the log would be counted as a unit: move it "
+                "below the range or out of the column")
     if isinstance(value, str):
         shown = value if len(value) <= 20 else value[:17] + "..."
         return f"holds text {shown!r}"
@@ -101,6 +105,33 @@ def describe(value) -> str:
             return f"holds {number_value:g}; lifetimes must be > 0"
         return f"holds {number_value:g}"
     return f"holds a value of type {type(value).__name__}"
+
+
+def is_formula_text(value) -> bool:
+    """A cell read as its formula, as a workbook reader gives one: '=AVERAGE(C2:C134)'."""
+    return isinstance(value, str) and value.startswith("=") and len(value) > 1
+
+
+def is_header_text(value) -> bool:
+    """Text that can only be a caption: not a number, a survivor mark, an error or a formula."""
+    if not isinstance(value, str) or _is_blank(value) or is_spreadsheet_error(value) or is_formula_text(value):
+        return False
+    text = value.strip()
+    return not text.endswith(SURVIVOR_MARK) and _as_number(text) is None
+
+
+def header_cells(flat) -> int:
+    """How many cells at the top of a range are its header: blanks and caption text above the first unit.
+
+    Text below the first unit is not skipped: it stays a bad cell, named by its row.
+    """
+    count = 0
+    for value in flat:
+        if _is_blank(value) or is_header_text(value):
+            count += 1
+        else:
+            break
+    return count
 
 
 def _as_number(value):
@@ -288,7 +319,8 @@ class LogCells:
     A cell holds a lifetime (a number, or numeric text), or a survivor: the
     time a unit was taken off test without failing, followed by ``+``
     (``1500+``, the usual censoring notation of reliability logs). Blank
-    cells (empty, or text of spaces only) are skipped.
+    cells (empty, or text of spaces only) are skipped, and so are caption
+    texts above the first unit (a header, see ``header_cells``).
 
     Attributes
     ----------
@@ -369,6 +401,9 @@ def read_log_cells(values, name="observations", *, single_column=False) -> LogCe
         raise InputError(f"{name} must be a single column, one unit per row")
     filled = len(flat) - _trailing_blanks(flat)
     cells = flat[:filled]
+    header = header_cells(cells)
+    if header:  # a caption above the first unit (a whole-column reference takes the header row along)
+        cells = [None] * header + cells[header:]
     parsed = _fast_log_numbers(cells)
     if parsed is None:
         parsed = _read_log_cells_one_by_one(cells)
