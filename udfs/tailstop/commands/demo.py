@@ -28,7 +28,16 @@ def run(args, out=None):
     from ..workbooks.demo_books import build_demo
 
     out = out or sys.stdout
-    result = build_demo(Path(args.out))
+    folder = Path(args.out)
+    if folder.exists() and not folder.is_dir():
+        print(f"tailstop demo: {folder} is a file; --out names the folder the demo books go into", file=sys.stderr)
+        return 1
+    try:
+        result = build_demo(folder)
+    except OSError as problem:
+        print(f"tailstop demo: cannot write the demo books into {folder} ({problem.strerror or problem})",
+              file=sys.stderr)
+        return 1
     print(summary(result), file=out)
     return 0
 

@@ -13,7 +13,10 @@ import time
 
 # numpy, scipy and the core are imported where they are used: `tailstop plan --help` needs none of them
 
-__all__ = ["ProgressBar", "add_arguments", "run"]
+__all__ = ["ProgressBar", "add_arguments", "run", "PLAN_UNITS_LIMIT"]
+
+# pass-fail is propagated exactly over some 20 n* units, in O(n_max²): beyond this no run finishes
+PLAN_UNITS_LIMIT = 1_000_000
 
 
 class ProgressBar:
@@ -79,6 +82,10 @@ def run(args, out=None, progress_stream=None):
     if args.png:
         _require_matplotlib()
     plan = (args.threshold, args.shape, args.scale, args.accuracy, args.confidence, args.pilot)
+    too_large = _too_large(plan)
+    if too_large:
+        print(f"tailstop plan: {too_large}", file=sys.stderr)
+        return 1
     counts = {"known-shape": args.replications, "fitted-shape": args.fitted_replications}
     bar = ProgressBar("simulating", progress_stream)
     try:
@@ -104,6 +111,22 @@ def run(args, out=None, progress_stream=None):
     print("\nFigures assume independent units with gamma lifetimes at the guessed parameters "
           "(pass-fail: only the probability). Simulated figures: ± one Monte Carlo standard error.", file=out)
     return 0
+
+
+def _too_large(plan):
+    """Why the plan cannot be computed (its size, in words), or None."""
+    from .sheet import FORMULAS
+    from .cells import ERROR_PREFIX, units_text
+
+    threshold, shape, scale, accuracy, confidence, _ = plan
+    units = FORMULAS["UNITS_REQUIRED"](threshold, shape, scale, accuracy, confidence, "pass-fail")
+    if isinstance(units, str):
+        return units.removeprefix(ERROR_PREFIX).strip() if units.startswith(ERROR_PREFIX) else None
+    if units > PLAN_UNITS_LIMIT:
+        return (f"this plan needs {units_text(units)} by pass-fail; `tailstop plan` computes plans up to "
+                f"{PLAN_UNITS_LIMIT:,} units: ask for a larger accuracy factor or choose a threshold nearer the "
+                "typical life")
+    return None
 
 
 def _aligned(rows):

@@ -134,6 +134,17 @@ def header_cells(flat) -> int:
     return count
 
 
+LARGE_COUNT = 10**12  # no test runs this many units; sheet_estimate refuses such plans too
+
+
+def units_text(units) -> str:
+    """'about 1,044,507 units', or 'more than 10^12 units (about 2.3e+291)' where digits would say nothing."""
+    if not math.isfinite(units) or units >= LARGE_COUNT:
+        about = f" (about {units:.2g})" if math.isfinite(units) else ""
+        return f"more than 10^12 units{about}"
+    return f"about {math.ceil(units):,} units"
+
+
 def _as_number(value):
     """float for a number or numeric text; None if it is not one."""
     if isinstance(value, bool):
@@ -216,6 +227,11 @@ def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
         raise InputError(log.problem)
     if log.values.size < minimum:
         raise InputError(f"{name}: needs at least {minimum} lifetimes (found {log.values.size})")
+    with np.errstate(over="ignore"):
+        total = float(np.sum(log.values))
+    if not math.isfinite(total):
+        raise InputError(f"{name}: the lifetimes are too large to add up (the largest is "
+                         f"{float(np.max(log.values)):.3g}); enter them in a larger unit, e.g. thousands of hours")
     return CleanRange(values=log.values, rows=log.rows, n_rows=log.n_rows)
 
 

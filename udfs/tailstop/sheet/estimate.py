@@ -202,7 +202,7 @@ def planning_sigma2(threshold, shape, scale, method, model=None, test_time=None)
 
 
 # A unit count above this is no test plan; a cell says so instead of showing a huge number.
-LARGEST_UNIT_COUNT = 1e12
+LARGEST_UNIT_COUNT = cells.LARGE_COUNT
 
 
 def unit_count(n_star) -> int:

@@ -53,7 +53,7 @@ def _pilot(value):
 def _exact_limit(n_star, pilot):
     if max(n_star, pilot) > EXACT_UNITS_LIMIT:
         raise cells.InputError(
-            f"this plan needs about {math.ceil(max(n_star, pilot)):,} units; a cell computes plans up to "
+            f"this plan needs {cells.units_text(max(n_star, pilot))}; a cell computes plans up to "
             f"{EXACT_UNITS_LIMIT:,} units: ask for less accuracy, or run `tailstop plan`")
 
 
@@ -75,14 +75,14 @@ def _replications(value, method, n_star, pilot, model="gamma"):
         replications = min(default, affordable)
         if replications < 100:
             raise cells.InputError(
-                f"this plan needs about {math.ceil(units):,} units per run; a cell simulates at most "
+                f"this plan needs {cells.units_text(units)} per run; a cell simulates at most "
                 f"{limit:,} replications × units for {label}: ask for less accuracy, or run `tailstop plan`")
         return replications
     replications = cells.whole_number(value, "replications", minimum=1, maximum=REPLICATIONS_LIMIT)
     if replications > affordable:
         raise cells.InputError(
             f"replications × units per run is capped at {limit:,} for {label} so that the cell stays quick; "
-            f"this plan needs about {math.ceil(units):,} units per run: use at most {max(affordable, 1):,} replications")
+            f"this plan needs {cells.units_text(units)} per run: use at most {max(affordable, 1):,} replications")
     return replications
 
 

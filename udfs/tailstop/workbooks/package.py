@@ -273,6 +273,9 @@ def inspect_package(path, limits=Limits()):
 def _check_signature(path):
     if not path.is_file():
         raise WorkbookRefused(f"{path}: no such file")
+    problem = _name_problem(path)
+    if problem:
+        raise WorkbookRefused(f"{path.name}: {problem}")
     with path.open("rb") as handle:
         head = handle.read(512)
     if not head:
@@ -285,6 +288,26 @@ def _check_signature(path):
             "not an .xlsx package; open it in a spreadsheet program and save it as .xlsx "
             "without a password")
     raise WorkbookRefused(f"{path.name}: not an .xlsx workbook ({_describe_bytes(head)})")
+
+
+# what openpyxl opens; every other name is a file of another kind, whatever its bytes
+READABLE_SUFFIXES = (".xlsx", ".xlsm", ".xltx", ".xltm")
+_TEXT_SUFFIXES = (".csv", ".tsv", ".txt", ".prn")
+_SAVE_AS = "open it in a spreadsheet program and save it as an .xlsx workbook first"
+
+
+def _name_problem(path):
+    """Why a file of this name is not read (its kind told by the name), or None."""
+    suffix = path.suffix.lower()
+    if suffix in READABLE_SUFFIXES:
+        return None
+    if suffix in _TEXT_SUFFIXES:
+        return f"a {suffix[1:].upper()} text file; tailstop reads .xlsx workbooks: {_SAVE_AS}"
+    if suffix == ".xls":
+        return f"an .xls workbook (the format before 2007); tailstop reads .xlsx workbooks: {_SAVE_AS}"
+    if suffix:
+        return f"a {suffix} file; tailstop reads .xlsx workbooks: {_SAVE_AS}"
+    return f"a file without a name ending; tailstop reads .xlsx workbooks: {_SAVE_AS}, named NAME.xlsx"
 
 
 def _describe_bytes(head):

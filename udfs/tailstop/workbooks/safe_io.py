@@ -200,7 +200,14 @@ def write_file_atomically(target, write, *, in_place=False, backup=True, check=N
 
 
 def _write_temporary(target, write):
-    descriptor, name = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=".partial", dir=target.parent)
+    folder = target.parent
+    if not folder.is_dir():
+        raise FileNotFoundError(f"the folder {folder} does not exist; create it or write somewhere else")
+    try:
+        descriptor, name = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=".partial", dir=folder)
+    except OSError as problem:
+        raise OSError(f"cannot write a file in the folder {folder} ({problem.strerror or problem}); "
+                      "write somewhere else") from None
     temporary = Path(name)
     try:
         with os.fdopen(descriptor, "wb") as handle:

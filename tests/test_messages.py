@@ -1,0 +1,80 @@
+"""What the command line and the formulas say when something is wrong: plain words, never a raw exception."""
+from __future__ import annotations
+
+import shutil
+
+import pytest
+
+from tailstop.cli import main
+from tailstop.sheet import GAMMA_FIT_PVALUE, GAMMA_FIT_SCALE, PLAN_SUMMARY_FROM_P
+from test_annotate import bench_lifetimes, rich_log
+
+RULE = ["--column", "D", "--threshold", "1500", "--accuracy", "1.5", "--pilot", "10"]
+
+
+def run(capsys, *arguments):
+    code = main([str(argument) for argument in arguments])
+    captured = capsys.readouterr()
+    assert "Traceback" not in captured.err and "Errno" not in captured.err, captured.err
+    return code, captured.out, captured.err
+
+
+def test_a_csv_log_is_to_be_saved_as_xlsx_first(tmp_path, capsys):
+    log = tmp_path / "log.csv"
+    log.write_text("unit,hours\n1,1200\n2,1800\n")
+    for verb in (["annotate", log, *RULE], ["recalc", log]):
+        code, out, err = run(capsys, *verb)
+        assert code == 1 and out == ""
+        assert "log.csv: a CSV text file; tailstop reads .xlsx workbooks: open it in a spreadsheet program and " \
+               "save it as an .xlsx workbook first" in err
+        assert ".xlsx name" not in err
+
+
+@pytest.mark.parametrize("suffix, kind", [(".xls", "an .xls workbook (the format before 2007)"), (".ods", "a .ods file")])
+def test_a_workbook_of_another_kind_is_named_by_its_kind(tmp_path, capsys, suffix, kind):
+    log = rich_log(tmp_path / "bench.xlsx", bench_lifetimes(40))
+    renamed = tmp_path / f"bench{suffix}"
+    shutil.copy(log, renamed)  # an .xlsx package under another name: the reader would blame its own format rules
+    for verb in (["annotate", renamed, *RULE], ["recalc", renamed]):
+        code, _, err = run(capsys, *verb)
+        assert code == 1 and f"bench{suffix}: {kind}; tailstop reads .xlsx workbooks" in err
+        assert "openpyxl" not in err and "xlrd" not in err
+
+
+def test_an_output_folder_that_does_not_exist(tmp_path, capsys):
+    log = rich_log(tmp_path / "bench.xlsx", bench_lifetimes(40))
+    for target in (tmp_path / "missing" / "new.xlsx", log / "new.xlsx"):  # no such folder; a file, not a folder
+        code, _, err = run(capsys, "annotate", log, *RULE, "--out", target)
+        assert code == 1 and f"the folder {target.parent} does not exist" in err
+        assert ".partial" not in err
+        code, _, err = run(capsys, "recalc", log, "--out", target)
+        assert code == 1 and f"the folder {target.parent} does not exist" in err
+    assert sorted(path.name for path in tmp_path.iterdir()) == ["bench.xlsx"]
+
+
+def test_demo_into_a_file(tmp_path, capsys):
+    target = tmp_path / "notes.txt"
+    target.write_text("keep me")
+    code, out, err = run(capsys, "demo", "--out", target)
+    assert code == 1 and f"{target} is a file; --out names the folder" in err
+    assert target.read_text() == "keep me"
+
+
+def test_lifetimes_too_large_to_add_up():
+    column = [[1e308], [2e307], [1e306], [9e307]]
+    for formula in (GAMMA_FIT_PVALUE, GAMMA_FIT_SCALE):
+        assert formula(column) == ("#TAILSTOP! observations: the lifetimes are too large to add up (the largest is "
+                                   "1e+308); enter them in a larger unit, e.g. thousands of hours")
+
+
+def test_a_plan_beyond_any_test_is_not_printed_digit_by_digit(capsys):
+    # pass-fail n* = (z / log d)^2 / (p (1 - p)) is about 2.3e291 at p = 1e-290 (METHOD.md §4, by hand)
+    text = PLAN_SUMMARY_FROM_P(1e-290, 1.5, 0.95, 10)
+    assert text.startswith("#TAILSTOP! this plan needs more than 10^12 units (about 2.3e+291)")
+    assert len(text) < 200
+    code, out, err = run(capsys, "plan", "--threshold", 100, "--shape", 1, "--scale", 1, "--accuracy", 1.5)
+    assert code == 1 and out == ""
+    # pass-fail n* at p = exp(-100) (exponential, METHOD.md §3, by hand): 23.37 / 3.72e-44 = 6.28e44
+    assert err.startswith("tailstop plan: this needs about 6.28e+44 units, more than any test can run")
+    code, out, err = run(capsys, "plan", "--threshold", 20, "--shape", 1, "--scale", 1, "--accuracy", 1.5)
+    assert code == 1 and "by pass-fail; `tailstop plan` computes plans up to 1,000,000 units" in err
