@@ -5,7 +5,7 @@ import shutil
 
 import pytest
 
-from tailstop.cli import main
+from tailstop.commands import main
 from tailstop.sheet import GAMMA_FIT_PVALUE, GAMMA_FIT_SCALE, PLAN_SUMMARY_FROM_P
 from test_annotate import bench_lifetimes, rich_log
 
@@ -78,3 +78,23 @@ def test_a_plan_beyond_any_test_is_not_printed_digit_by_digit(capsys):
     assert err.startswith("tailstop plan: this needs about 6.28e+44 units, more than any test can run")
     code, out, err = run(capsys, "plan", "--threshold", 20, "--shape", 1, "--scale", 1, "--accuracy", 1.5)
     assert code == 1 and "by pass-fail; `tailstop plan` computes plans up to 1,000,000 units" in err
+
+
+@pytest.mark.parametrize("lock", ["~$bench.xlsx", ".~lock.bench.xlsx#"])  # Excel's and LibreOffice's lock files
+@pytest.mark.parametrize("streaming", [False, True])
+def test_in_place_refuses_a_book_a_spreadsheet_program_holds_open(tmp_path, capsys, monkeypatch, lock, streaming):
+    import tailstop.workbooks.annotate_stream as annotate_stream
+
+    monkeypatch.setattr(annotate_stream, "STREAM_FROM_BYTES", 1 if streaming else 2**40)
+    log = rich_log(tmp_path / "bench.xlsx", bench_lifetimes(60))
+    (tmp_path / lock).write_text("user,host")
+    before = log.read_bytes()
+    code, out, err = run(capsys, "annotate", log, *RULE, "--in-place")
+    assert code == 1 and out == ""
+    assert f"bench.xlsx is open in a spreadsheet program (its lock file {lock} is beside it)" in err
+    assert "--force" in err and log.read_bytes() == before
+    code, out, err = run(capsys, "recalc", log, "--in-place")
+    assert code == 1 and lock in err and log.read_bytes() == before
+    code, out, _ = run(capsys, "annotate", log, *RULE, "--in-place", "--force")
+    assert code == 0 and log.read_bytes() != before
+    assert ("edited as a stream" in out) == streaming

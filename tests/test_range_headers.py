@@ -11,11 +11,11 @@ import numpy as np
 import pytest
 
 from conftest import range_values
-from tailstop.cells import read_log_cells
+from tailstop.sheet.cells import read_log_cells
 from tailstop.sheet import FORMULAS, STOP_DECISION_COLUMN, TAIL_PROB_EST
 
 ARGUMENTS = {"threshold": 1200.0, "accuracy": 1.5, "confidence": 0.95, "pilot": 5, "method": None,
-             "shape": None, "check_every": None}
+             "shape": None, "check_every": None, "model": None}
 
 
 def call(name, column):

@@ -34,6 +34,8 @@ def add_arguments(parser):
                                                           "log); an existing file is never overwritten")
     parser.add_argument("--in-place", action="store_true", help="replace the log itself (a backup is kept)")
     parser.add_argument("--no-backup", action="store_true", help="with --in-place: keep no backup")
+    parser.add_argument("--force", action="store_true", help="with --in-place: replace the log although a "
+                                                            "spreadsheet program's lock file says it is open")
     parser.add_argument("--live", action="store_true",
                         help="write tailstop formulas (with their values stored) instead of values")
     parser.add_argument("--allow-lossy", action="store_true",
@@ -59,11 +61,13 @@ def run(args, out=None, err=None):
     try:
         if args.no_backup and not args.in_place:
             raise AnnotateRefused("--no-backup applies to --in-place only")
+        if args.force and not args.in_place:
+            raise AnnotateRefused("--force applies to --in-place only")
         plan = RulePlan.checked(args.threshold, args.accuracy, args.confidence, args.pilot, args.method,
                                 args.shape, args.check_every)
         result = annotate(args.log, column=args.column, plan=plan, sheet=args.sheet, out=args.out,
                           in_place=args.in_place, backup=not args.no_backup, live=args.live,
-                          allow_lossy=args.allow_lossy)
+                          allow_lossy=args.allow_lossy, force=args.force)
     except (AnnotateRefused, WorkbookRefused, LogProblem, cells.InputError, FileExistsError) as problem:
         print(f"tailstop annotate: {_cli_text(problem)}", file=err)
         return 1

@@ -115,8 +115,8 @@ def run(args, out=None, progress_stream=None):
 
 def _too_large(plan):
     """Why the plan cannot be computed (its size, in words), or None."""
-    from .sheet import FORMULAS
-    from .cells import ERROR_PREFIX, units_text
+    from ..sheet import FORMULAS
+    from ..sheet.cells import ERROR_PREFIX, units_text
 
     threshold, shape, scale, accuracy, confidence, _ = plan
     units = FORMULAS["UNITS_REQUIRED"](threshold, shape, scale, accuracy, confidence, "pass-fail")

@@ -18,6 +18,8 @@ def add_arguments(parser):
     parser.add_argument("--out", type=Path, help="where to write the result (default: BOOK-recalc.xlsx beside it)")
     parser.add_argument("--in-place", action="store_true", help="replace BOOK itself (a backup is kept)")
     parser.add_argument("--no-backup", action="store_true", help="with --in-place: keep no backup copy")
+    parser.add_argument("--force", action="store_true", help="with --in-place: replace BOOK although a "
+                                                            "spreadsheet program's lock file says it is open")
     parser.add_argument("--allow-lossy", action="store_true",
                         help="go on even if content the file holds would be lost on saving (it says what)")
     parser.add_argument("--for", dest="spelling", choices=("excel", "libreoffice"),
@@ -38,6 +40,10 @@ def run(args):
     if args.in_place and args.out is not None:
         print("tailstop recalc: give either --out or --in-place, not both", file=sys.stderr)
         return 1
+    if args.in_place and not args.force:
+        from ..workbooks.safe_io import refuse_if_open
+
+        refuse_if_open(args.book, "recalculate")
     target = args.book if args.in_place else (args.out or default_output(args.book))
     evaluate = None
     if args.engine == "libreoffice":

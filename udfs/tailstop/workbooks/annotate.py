@@ -56,12 +56,12 @@ from .log_layout import (
     write_estimate_block,
 )
 from .row_cells import append_to_sheet
-from .safe_io import open_workbook_safely, resolve_column, write_file_atomically
+from .safe_io import open_workbook_safely, refuse_if_open, resolve_column, write_file_atomically
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "check_log_column", "place_columns"]
 
 def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=False, backup=True, live=False,
-             allow_lossy=False, streaming=None) -> AnnotateResult:
+             allow_lossy=False, streaming=None, force=False) -> AnnotateResult:
     """Add the decision column and the estimate block to a test log and write the result.
 
     Parameters
@@ -88,6 +88,8 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
         Default: when the log's sheet is long (``STREAM_FROM_BYTES``) and its
         markup allows it; the openpyxl path otherwise. True insists
         (``AnnotateRefused`` if the markup does not allow it); False never streams.
+    force : bool
+        With ``in_place``: replace the log although a spreadsheet program's lock file says it is open.
 
     Raises
     ------
@@ -96,6 +98,8 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     """
     source = Path(source)
     target = _target(source, out, in_place)
+    if in_place and not force:
+        refuse_if_open(source, "annotate")
     if streaming is not False:
         from . import annotate_stream
 

@@ -364,3 +364,27 @@ def iter_column_values(sheet, column, *, first_row=2, last_row=None):
                            values_only=True)
     for row in rows:
         yield row[0] if row else None
+
+
+def lock_file(path):
+    """The lock file a spreadsheet program keeps beside a book it holds open, or None.
+
+    Excel writes ``~$NAME.xlsx``, LibreOffice ``.~lock.NAME.xlsx#`` into the book's folder while the book is
+    open (and removes it on closing; a crash can leave one behind).
+    """
+    path = Path(path)
+    for name in (f"~${path.name}", f".~lock.{path.name}#"):
+        candidate = path.with_name(name)
+        if candidate.exists():
+            return candidate
+    return None
+
+
+def refuse_if_open(path, verb):
+    """OSError when a spreadsheet program holds ``path`` open: replacing it now would lose the user's edits."""
+    found = lock_file(path)
+    if found is not None:
+        raise OSError(f"{Path(path).name} is open in a spreadsheet program (its lock file {found.name} is beside "
+                      f"it): close it there, then {verb} again; if no program has it open (the lock file was left "
+                      "by a crash), give --force")
+
