@@ -138,13 +138,13 @@ def test_decision_column_and_block_follow_the_rule_and_the_interval(log_path):
     sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
     stop = rule_stop(lifetimes)
     assert stop is not None
-    assert result.decision_column == 10  # after the merged H1:I2, the sheet's last column
-    assert sheet.cell(1, 10).value == DECISION_HEADER
-    decisions = [sheet.cell(row, 10).value for row in range(2, len(lifetimes) + 2)]
+    assert result.decision_column == 7  # G: the first column right of the log free in its rows (F holds remarks)
+    assert sheet.cell(1, 7).value == DECISION_HEADER
+    decisions = [sheet.cell(row, 7).value for row in range(2, len(lifetimes) + 2)]
     expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (
         len(lifetimes) - stop)
     assert decisions == expected
-    block = {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 40)}
+    block = {sheet.cell(row, 10).value: sheet.cell(row, 11).value for row in range(1, 40)}
     assert block["Units used, N"] == stop
     assert block["Log rows used (down to the STOP)"] == stop
     # check value: the pass-fail estimate is the share of units beyond the threshold (counted here)
@@ -174,7 +174,7 @@ def test_every_pre_existing_cell_keeps_its_value_and_formula(log_path):
             assert not added, title
         else:
             columns = {openpyxl.utils.cell.coordinate_from_string(c)[0] for c in added}
-            assert columns <= {"J", "L", "M"}
+            assert columns <= {"G", "J", "K"}  # the block skips I, under the merged H1:I2
     # the values openpyxl reads without formulas (dates, times, numbers) too
     after_values = all_cells(result.path, data_only=True)
     for title, cells in before_values.items():
@@ -193,11 +193,11 @@ def test_live_mode_writes_formulas_whose_cached_values_the_engine_reproduces(log
                       out=log_path.with_name("live.xlsx"))
     formulas = openpyxl.load_workbook(result.path)[LOG_SHEET]
     cached = openpyxl.load_workbook(result.path, data_only=True)[LOG_SHEET]
-    assert formulas["J2"].value == "=STOP_DECISION($D$2:D2,$M$3,$M$6,$M$7,$M$8,$M$4,$M$5,$M$9)"
-    assert formulas["M3"].value == THRESHOLD  # the settings are plain inputs
+    assert formulas["G2"].value == "=STOP_DECISION($D$2:D2,$K$3,$K$6,$K$7,$K$8,$K$4,$K$5,$K$9)"
+    assert formulas["K3"].value == THRESHOLD  # the settings are plain inputs
     computed = evaluate_workbook(result.path)
     checked = 0
-    for row in formulas.iter_rows(min_col=10, max_col=13):
+    for row in formulas.iter_rows(min_col=7, max_col=11):
         for cell in row:
             if isinstance(cell.value, str) and cell.value.startswith("="):
                 stored = cached[cell.coordinate].value
@@ -216,9 +216,9 @@ def test_values_mode_matches_live_mode(log_path):
     plain = openpyxl.load_workbook(values.path)[LOG_SHEET]
     cached = openpyxl.load_workbook(live.path, data_only=True)[LOG_SHEET]
     for row in range(2, len(bench_lifetimes()) + 2):
-        assert plain.cell(row, 10).value == cached.cell(row, 10).value
+        assert plain.cell(row, 7).value == cached.cell(row, 7).value
     for row in range(11, 21):
-        value, stored = plain.cell(row, 13).value, cached.cell(row, 13).value
+        value, stored = plain.cell(row, 11).value, cached.cell(row, 11).value
         assert value == (pytest.approx(stored, rel=1e-15) if isinstance(stored, float) else stored), row
 
 
@@ -227,10 +227,10 @@ def test_gamma_methods_and_check_interval(tmp_path):
     path = rich_log(tmp_path / "bench.xlsx", lifetimes)
     result = annotate(path, column="D", plan=plan(method="known-shape", shape=2.4, check_every=4))
     sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
-    decisions = [sheet.cell(row, 10).value for row in range(2, len(lifetimes) + 2)]
+    decisions = [sheet.cell(row, 7).value for row in range(2, len(lifetimes) + 2)]
     stop = decisions.index("STOP") + 1
     assert (stop - PILOT) % 4 == 0  # the rule is consulted at m, m + k, m + 2k, ...
-    block = {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 40)}
+    block = {sheet.cell(row, 10).value: sheet.cell(row, 11).value for row in range(1, 40)}
     # check value: known-shape estimate Q(a, c/s) with s = mean/a, by scipy.stats.gamma
     mean = float(np.mean(lifetimes[:stop]))
     expected = stats.gamma.sf(THRESHOLD, 2.4, scale=mean / 2.4)
@@ -247,7 +247,7 @@ def test_a_log_that_has_not_stopped_says_so(tmp_path, capsys):
     assert "the rule has not stopped after 30 units" in out
     assert "warning: odds within a factor 1.5 at 95 % confidence need about" in out
     sheet = openpyxl.load_workbook(default_output(path))[LOG_SHEET]
-    assert sheet["J31"].value == "CONTINUE"
+    assert sheet["G31"].value == "CONTINUE"
 
 
 def test_blank_rows_and_survivors(tmp_path):
@@ -257,11 +257,11 @@ def test_blank_rows_and_survivors(tmp_path):
     path = rich_log(tmp_path / "gaps.xlsx", lifetimes)
     result = annotate(path, column="D", plan=plan())
     sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
-    assert sheet["J22"].value is None  # a blank row is not a unit
+    assert sheet["G22"].value is None  # a blank row is not a unit
     values = [v for v in lifetimes if v is not None]
     numbers = [THRESHOLD + 1 if v == "1500+" else v for v in values]
     stop = rule_stop(numbers)
-    decisions = [sheet.cell(row, 10).value for row in range(2, len(lifetimes) + 2)]
+    decisions = [sheet.cell(row, 7).value for row in range(2, len(lifetimes) + 2)]
     assert decisions.index("STOP") == stop  # one blank row above it: rows = units + 1
     assert result.analysis.units_used == stop
 
@@ -343,7 +343,7 @@ def test_cells_the_method_cannot_use(tmp_path, capsys, value, reason):
 
 
 @pytest.mark.parametrize("arguments, message", [
-    (["--column", "Z"], "'Bench log'!Z2 and the rows below are empty"),
+    (["--column", "Z"], "column Z of sheet 'Bench log' is empty: no log to annotate"),
     (["--column", "Lifetime"], "no column 'Lifetime'"),
     (["--column", "D", "--sheet", "Log"], "has no sheet 'Log'; its sheets are 'Notes', 'Bench log', 'Summary'"),
     (["--column", "A", "--sheet", "Notes"], "Notes!A5 holds TRUE, not a number"),
@@ -367,7 +367,7 @@ def test_a_numeric_first_row_is_not_taken_for_a_header(tmp_path, capsys):
     book.save(tmp_path / "noheader.xlsx")
     code, _, err = run_cli(capsys, tmp_path / "noheader.xlsx", "--column", "A", "--threshold", 1500,
                            "--accuracy", 1.5, "--pilot", 10)
-    assert code == 1 and "row 1 must hold the column's header" in err
+    assert code == 1 and "the row above the log must hold the column's header" in err
 
 
 def test_never_overwrites_and_in_place_keeps_a_backup(log_path, capsys):
@@ -381,7 +381,7 @@ def test_never_overwrites_and_in_place_keeps_a_backup(log_path, capsys):
     code, out, _ = run_cli(capsys, *arguments, "--in-place")
     assert code == 0 and "backup of the original" in out
     assert log_path.with_name("bench.backup.xlsx").read_bytes() == original
-    assert openpyxl.load_workbook(log_path)[LOG_SHEET]["J1"].value == DECISION_HEADER
+    assert openpyxl.load_workbook(log_path)[LOG_SHEET]["G1"].value == DECISION_HEADER
 
 
 def test_in_place_without_backup(log_path, capsys):
@@ -541,9 +541,9 @@ def test_a_long_log_goes_through_the_row_markup(tmp_path):
     formulas = openpyxl.load_workbook(live.path)[LOG_SHEET]
     cached = openpyxl.load_workbook(live.path, data_only=True)[LOG_SHEET]
     stop = rule_stop(lifetimes)
-    assert values.cell(stop + 1, 10).value == "STOP" and values.cell(401, 10).value == "PAST STOP"
-    assert formulas["J401"].value == "=STOP_DECISION($D$2:D401,$M$3,$M$6,$M$7,$M$8,$M$4,$M$5,$M$9)"
-    assert cached["J401"].value == "PAST STOP" and cached.cell(stop + 1, 10).value == "STOP"
+    assert values.cell(stop + 1, 7).value == "STOP" and values.cell(401, 7).value == "PAST STOP"
+    assert formulas["G401"].value == "=STOP_DECISION($D$2:D401,$K$3,$K$6,$K$7,$K$8,$K$4,$K$5,$K$9)"
+    assert cached["G401"].value == "PAST STOP" and cached.cell(stop + 1, 7).value == "STOP"
     assert Path(result.path).stat().st_size > 0
 
 
@@ -590,10 +590,15 @@ def test_annotate_keeps_whatever_else_the_book_holds(placed):
         after = all_cells(result.path)
         for title, cells in before.items():
             assert {c: after[title].get(c) for c in cells} == cells, title
-        added = {c for c in after["Log"] if c not in before["Log"]}
-        first_new = log.max_column + 1
-        assert all(openpyxl.utils.cell.column_index_from_string(
-            openpyxl.utils.cell.coordinate_from_string(c)[0]) >= first_new for c in added)
+        added = {openpyxl.utils.cell.coordinate_to_tuple(c) for c in after["Log"] if c not in before["Log"]}
+        taken = set(log._cells)  # every cell the sheet holds, blank strings and styled blanks too
+        assert not added & taken
+        # the decisions go into the first column right of the log (B) with nothing in rows 1..61
+        log_rows = range(1, result.log.last_row + 1)
+        free = next(column for column in range(3, 100) if not any((row, column) in taken for row in log_rows))
+        assert result.decision_column == free
+        block = openpyxl.utils.cell.range_boundaries(result.block)
+        assert {column for _, column in added} <= {free, block[0], block[2]}
         assert set(after["Other"]) == set(before["Other"])
 
 

@@ -17,10 +17,16 @@ HELP = "Add the stop/continue decision column and the estimate block to a test l
 
 
 def add_arguments(parser):
-    parser.add_argument("log", metavar="LOG.xlsx", help="the test log, one unit per row, header in row 1")
+    parser.add_argument("log", metavar="LOG.xlsx", help="the test log, one unit per row below a header row")
     parser.add_argument("--sheet", help="the sheet holding the log (default: the active sheet)")
     parser.add_argument("--column", required=True,
-                        help="the lifetime column: a letter (B) or the header text of row 1")
+                        help="the lifetime column: a letter (B) or its header text")
+    parser.add_argument("--header-row", type=int, metavar="N",
+                        help="the row holding the log's headers (default: the last text above the column's first "
+                             "value; title rows and blank rows may stand above it)")
+    parser.add_argument("--into", metavar="COLUMN",
+                        help="the column for the decisions (default: the first column right of the log with "
+                             "nothing in the log's rows); never a column holding anything there")
     parser.add_argument("--threshold", required=True, help="the threshold c (mission time, warranty limit), "
                                                            "in the unit of the lifetimes")
     parser.add_argument("--accuracy", required=True, help="odds to be known within this factor d > 1, e.g. 1.5")
@@ -67,7 +73,8 @@ def run(args, out=None, err=None):
                                 args.shape, args.check_every)
         result = annotate(args.log, column=args.column, plan=plan, sheet=args.sheet, out=args.out,
                           in_place=args.in_place, backup=not args.no_backup, live=args.live,
-                          allow_lossy=args.allow_lossy, force=args.force)
+                          allow_lossy=args.allow_lossy, force=args.force, header_row=args.header_row,
+                          into=args.into)
     except (AnnotateRefused, WorkbookRefused, LogProblem, cells.InputError, FileExistsError) as problem:
         print(f"tailstop annotate: {_cli_text(problem)}", file=err)
         return 1
@@ -92,6 +99,8 @@ def summary(result) -> str:
     analysis, log = result.analysis, result.log
     figures = analysis.figures
     lines = [f"Annotated {log.text()} ({analysis.units} units) -> {result.path}"]
+    lines.append(f"  header: row {log.first_row - 1} ({result.header!r}); the log is rows {log.first_row} to "
+                 f"{log.last_row}")
     lines.append(f"  rule: {analysis.plan.describe()}")
     if analysis.stopped:
         row = log.first_row + analysis.stop_offset

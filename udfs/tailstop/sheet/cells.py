@@ -112,6 +112,11 @@ def is_formula_text(value) -> bool:
     return isinstance(value, str) and value.startswith("=") and len(value) > 1
 
 
+def is_blank(value) -> bool:
+    """An empty cell, or one holding only spaces."""
+    return _is_blank(value)
+
+
 def is_header_text(value) -> bool:
     """Text that can only be a caption: not a number, a survivor mark, an error or a formula."""
     if not isinstance(value, str) or _is_blank(value) or is_spreadsheet_error(value) or is_formula_text(value):

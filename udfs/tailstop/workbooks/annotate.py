@@ -2,12 +2,20 @@
 
 What it writes (layout in ``workbooks/log_layout.py``):
 
-* the **decision column** in the first column to the right of everything on
-  the sheet (so it cannot overwrite anything), header in row 1, one decision
-  per log row;
-* the **estimate block** one empty column further right, from row 1 down: the
-  rule's settings, where it stopped, the estimate and its bounds for the
-  probability and the odds, the units the accuracy needs, the warnings.
+* the **decision column** next to the log: the first column right of the
+  lifetimes that holds nothing in the log's rows (or the column ``into``
+  names, refused if it holds anything there), its header in the log's header
+  row, one decision per log row;
+* the **estimate block** from row 1 down, in the first two columns at least
+  one column right of the decision column that hold nothing in the block's
+  rows: the rule's settings, where it stopped, the estimate and its bounds
+  for the probability and the odds, the units the accuracy needs, the
+  warnings.
+
+The header need not be in row 1: it is the last caption above the first
+value of the column (title rows, a merged title and blank rows may stand
+above it), or the row ``header_row`` gives. No cell that holds anything, not
+even a styled blank, is written over.
 
 By default both hold computed values, so the file reads the same in any
 spreadsheet program. With ``live`` they hold tailstop formulas (with the
@@ -42,11 +50,15 @@ from .annotation import (
     AnnotateRefused,
     AnnotateResult,
     check_log_column,
+    column_number_of,
     default_output,
+    first_log_row,
     place_columns,
 )
 from .cached_values import save_with_cached_values
 from .log_layout import (
+    HEADER_SEARCH_ROWS,
+    Occupancy,
     RulePlan,
     analyse_log,
     read_log_range,
@@ -56,12 +68,12 @@ from .log_layout import (
     write_estimate_block,
 )
 from .row_cells import append_to_sheet
-from .safe_io import open_workbook_safely, refuse_if_open, resolve_column, write_file_atomically
+from .safe_io import open_workbook_safely, refuse_if_open, write_file_atomically
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "annotate", "default_output", "check_log_column", "place_columns"]
 
 def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=False, backup=True, live=False,
-             allow_lossy=False, streaming=None, force=False) -> AnnotateResult:
+             allow_lossy=False, streaming=None, force=False, header_row=None, into=None) -> AnnotateResult:
     """Add the decision column and the estimate block to a test log and write the result.
 
     Parameters
@@ -69,7 +81,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     source : path
         The log, an .xlsx workbook.
     column : str or int
-        The log column: a letter, a 1-based number, or the header text in row 1.
+        The log column: a letter, a 1-based number, or its header text (in the top rows).
     plan : RulePlan
         The rule's settings (``RulePlan.checked``).
     sheet : str, optional
@@ -90,6 +102,10 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
         (``AnnotateRefused`` if the markup does not allow it); False never streams.
     force : bool
         With ``in_place``: replace the log although a spreadsheet program's lock file says it is open.
+    header_row : int, optional
+        The header's row; default the last caption above the column's first value.
+    into : str or int, optional
+        The decision column (a letter or a number); default the first free column right of the log.
 
     Raises
     ------
@@ -106,7 +122,8 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
         if streaming or annotate_stream.wants_streaming(source, sheet):
             try:
                 return annotate_stream.annotate_streamed(source, target, column=column, plan=plan, sheet=sheet,
-                                                         in_place=in_place, backup=backup, live=live)
+                                                         in_place=in_place, backup=backup, live=live,
+                                                         header_row=header_row, into=into)
             except annotate_stream.NotStreamable as reason:
                 if streaming:
                     raise AnnotateRefused(f"{source.name} cannot be edited as a stream: {reason}") from None
@@ -114,11 +131,11 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     losses = [str(loss) for loss in book.tailstop_report.losses]
     losses += _hidden_values(source, book, allow_lossy)
     worksheet = _worksheet(book, sheet, source)
-    log, values = _log_column(worksheet, column)
+    log, values, header = _log_column(worksheet, column, header_row)
     analysis = analyse_log(log, values, plan)
     before = cell_check.snapshot(book)
     cached = dict(before.rounded)  # numbers openpyxl would round are stored exactly
-    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached)
+    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached, into)
     checked = before.cell_count
     expected = cell_check.expected_after(before, {worksheet.title: added}, in_place=True)
     data = _package_bytes(book, cached)
@@ -127,21 +144,25 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     saved = write_file_atomically(target, lambda handle: handle.write(data), in_place=in_place, backup=backup)
     _check_written(saved.path, data)
     return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
-                          checked, len(before.cells), losses, live)
+                          checked, len(before.cells), losses, live, header=header)
 
 
-def _add(worksheet, log, values, analysis, live, cached):
-    """Write the block and the decision column right of everything on the sheet.
+def _add(worksheet, log, values, analysis, live, cached, into):
+    """Write the decision column next to the log and the block beside it, over no existing cell.
 
     Returns
     -------
     (decision column, BlockLayout, {row: markup to append}, {cell key: canonical content of every added cell})
     """
-    decision_column, label_column, layout = place_columns(worksheet.title, worksheet.max_column, analysis, live)
+    occupancy = Occupancy.from_keys(worksheet._cells, [ranged.bounds for ranged in worksheet.merged_cells.ranges])
+    decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into)
     write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
                          source="values computed by tailstop annotate")
+    # decision cells can be appended to the end of openpyxl's row markup only where nothing stands to their right
+    crowded = {row for row, column in worksheet._cells if column > decision_column}
+    as_markup = [row for row in _rows_written_anyway(log, values, layout) if row not in crowded]
     markup = write_decision_column(worksheet, log, decision_column, analysis, live=live, cached=cached,
-                                   layout=layout, as_markup=_rows_written_anyway(log, values, layout))
+                                   layout=layout, as_markup=as_markup)
     set_width(worksheet, decision_column, 18)
     set_width(worksheet, label_column, 44)
     set_width(worksheet, label_column + 1, 24)
@@ -188,15 +209,18 @@ def _worksheet(book, sheet, source):
     return chosen
 
 
-def _log_column(worksheet, column):
-    try:
-        number = resolve_column(worksheet, column)
-    except ValueError as problem:
-        raise AnnotateRefused(f"sheet {worksheet.title!r}: {problem}") from None
-    log, values = read_log_range(worksheet, number)
-    header = worksheet._cells.get((1, number))
-    check_log_column(log, None if header is None else header.value)
-    return log, values
+def _log_column(worksheet, column, header_row):
+    """The log's range and values, and its header text; the header found as ``header_row_of`` says."""
+    stored = worksheet._cells
+    window = header_row or HEADER_SEARCH_ROWS
+    top = {key: cell._value for key, cell in stored.items() if key[0] <= window}
+    number = column_number_of(worksheet.title, top, column, header_row)
+    found = {row: cell._value for (row, col), cell in stored.items() if col == number and cell._value is not None}
+    header = first_log_row(worksheet.title, number, found, header_row)
+    log, values = read_log_range(worksheet, number, header + 1)
+    header_value = found.get(header)
+    check_log_column(log, header_value)
+    return log, values, "" if header_value is None else str(header_value)
 
 
 def _rows_written_anyway(log, values, layout):

@@ -35,9 +35,12 @@ from openpyxl.xml.functions import tostring
 
 from . import cell_check
 from . import sheet_stream as ss
-from .annotation import AnnotateRefused, AnnotateResult, check_log_column, place_columns
+from .annotation import (AnnotateRefused, AnnotateResult, check_log_column, column_number_of, first_log_row,
+                         place_columns)
 from .log_layout import (
+    HEADER_SEARCH_ROWS,
     LogRange,
+    Occupancy,
     analyse_log,
     decision_cell,
     decision_content,
@@ -47,7 +50,7 @@ from .log_layout import (
     write_estimate_block,
 )
 from .package import Limits, WorkbookRefused, inspect_package
-from .safe_io import column_from_headers, write_file_atomically
+from .safe_io import write_file_atomically
 
 __all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable"]
 
@@ -88,7 +91,7 @@ def _active_title(workbook, titles):
 
 
 def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, in_place=False, backup=True,
-                      live=False) -> AnnotateResult:
+                      live=False, header_row=None, into=None) -> AnnotateResult:
     """``annotate`` without loading the book; ``NotStreamable`` when its markup needs the openpyxl path."""
     report = inspect_package(source, STREAM_LIMITS)
     if _WORKBOOK not in report.content_types.values():
@@ -107,18 +110,19 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
         split = ss.split_sheet(archive.read(part))
         styles_xml = archive.read(styles_part)
     try:
-        shape, log, values, header = _scan(split, package, title, column)
+        shape, log, values, header, occupancy = _scan(split, package, title, column, header_row)
     except cell_check.UnreadableCells as problem:
         raise WorkbookRefused(f"{source.name}: sheet {title!r}: {problem}") from None
     check_log_column(log, header)
     analysis = analyse_log(log, values, plan)
     del values
-    decision_column, label_column, layout = place_columns(title, shape.max_column, analysis, live)
+    decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into)
+    del occupancy
     edit = ss.StylesEdit(styles_xml, BUILTIN_FORMATS_REVERSE)
     block, added, cf = _block_markup(title, log, decision_column, layout, analysis, live, edit)
     last_row = max(shape.max_row, log.last_row, layout.last_row)
     widths = dict(zip((decision_column, label_column, label_column + 1), WIDTHS))
-    head = ss.edit_head(split.head, last_row, label_column + 1, widths)
+    head = ss.edit_head(split.head, last_row, max(shape.max_column, label_column + 1), widths)
     sqref, dxf, operator, formula = cf
     dxf_id = edit.differential_format(dxf)
     tail = ss.edit_tail(split.tail, ss.conditional_format(sqref, dxf_id, ss.next_priority(split.tail), operator,
@@ -131,7 +135,7 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
 
     def write(handle):
         _write_package(source, handle, part, styles_part, new_styles,
-                       (head, ss.extended_rows(split, additions(), label_column + 1), tail))
+                       (head, ss.extended_rows(split, additions(), max(shape.max_column, label_column + 1)), tail))
 
     checked = {}
 
@@ -141,7 +145,8 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
 
     saved = write_file_atomically(target, write, in_place=in_place, backup=backup, check=check)
     return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
-                          checked["cells"], len(worksheets), [], live, copied_parts=checked["copied"])
+                          checked["cells"], len(worksheets), [], live, copied_parts=checked["copied"],
+                          header="" if header is None else str(header))
 
 
 def _sheet_title(workbook, titles, worksheets, sheet, source):
@@ -160,35 +165,41 @@ def _sheet_title(workbook, titles, worksheets, sheet, source):
 # --------------------------------------------------------------------------- reading the log
 
 
-def _scan(split, package, title, column):
-    """The sheet's shape, the log range and values, and the header cell's value."""
+def _scan(split, package, title, column, header_row):
+    """The sheet's shape, the log range and values, the header cell's value and where the sheet has cells.
+
+    The cells of the top rows (``HEADER_SEARCH_ROWS``, or down to ``header_row``) are kept until the log
+    column is known from them; from then on only that column's values are.
+    """
     shape = ss.SheetShape()
     reader = cell_check.SliceReader(package, split.root)
-    number, found, headers = None, {}, {}
+    occupancy, letters = Occupancy(), {}
+    window = header_row or HEADER_SEARCH_ROWS
+    number, found, top = None, {}, {}
     for _, piece in split.slices():
         shape.take(piece)
+        for row, col in ss.cell_positions(piece, letters):
+            occupancy.add(row, col)
         cells = reader.cells(piece)
         if number is None:
-            headers = {key & 0x3FFF: cell_check.raw_value(value) for key, value in cells.items() if key >> 14 == 1}
-            number = _column(headers, column, title)
+            top.update({(key >> 14, key & 0x3FFF): cell_check.raw_value(value) for key, value in cells.items()
+                        if key >> 14 <= window})
+            if shape.max_row <= window:
+                continue
+            number = column_number_of(title, top, column, header_row)
         for key, value in cells.items():
-            if key & 0x3FFF == number and key >> 14 >= 2:
+            if key & 0x3FFF == number:
                 found[key >> 14] = cell_check.raw_value(value)
     if number is None:
-        number = _column({}, column, title)
+        number = column_number_of(title, top, column, header_row)
+    found.update({row: value for (row, col), value in top.items() if col == number})
     shape.take_merges(split.tail)
-    last = max(found, default=1)
-    values = [None] * (last - 1)
-    for row, value in found.items():
-        values[row - 2] = value
-    return shape, LogRange(title, number, 2, last), values, headers.get(number)
-
-
-def _column(headers, column, title):
-    try:
-        return column_from_headers(headers, column)
-    except ValueError as problem:
-        raise AnnotateRefused(f"sheet {title!r}: {problem}") from None
+    for rectangle in ss.merged_ranges(split.tail):
+        occupancy.add_merged(*rectangle)
+    header = first_log_row(title, number, found, header_row)
+    last = max((row for row, value in found.items() if value is not None), default=header)
+    values = [found.get(row) for row in range(header + 1, last + 1)]
+    return shape, LogRange(title, number, header + 1, last), values, found.get(header), occupancy
 
 
 # --------------------------------------------------------------------------- the new cells
@@ -212,14 +223,14 @@ def _block_markup(title, log, decision_column, layout, analysis, live, edit):
         if data_type == "f" and not isinstance(value, str):
             raise ValueError(f"{cell.coordinate}: array formulas are not written by the streaming path")
         markup = ss.cell_markup(cell.coordinate, style, data_type, value, cached.get((title, cell.coordinate)))
-        by_row.setdefault(row, []).append(markup)
+        by_row.setdefault(row, []).append((column, markup))
         entry = cell_check.canonical(data_type, value)
         if entry is not None:
             added[cell_check.cell_key(row, column)] = entry
     rules = [(str(cf.sqref), rule) for cf in scratch.conditional_formatting for rule in cf.rules]
     (sqref, rule), = rules
     cf = (sqref, tostring(rule.dxf.to_tree()), rule.operator, rule.formula[0])
-    return {row: b"".join(cells) for row, cells in by_row.items()}, added, cf
+    return by_row, added, cf
 
 
 def _style(cell, edit):
@@ -234,7 +245,7 @@ def _style(cell, edit):
 
 
 def _additions(log, decision_column, decisions, rule, block):
-    """(row, markup) in row order: the decision cell, then the block's cells of that row."""
+    """(row, [(column, markup), ...]) in row order: the decision cell and the block's cells of that row."""
     block_rows = sorted(block)
     index = 0
     for offset, decision in enumerate(decisions):
@@ -242,13 +253,13 @@ def _additions(log, decision_column, decisions, rule, block):
         while index < len(block_rows) and block_rows[index] < row:
             yield block_rows[index], block[block_rows[index]]
             index += 1
-        extra = b""
+        extra = []
         if index < len(block_rows) and block_rows[index] == row:
             extra = block[row]
             index += 1
         cell, _ = decision_cell(log, decision_column, row, decision, rule)
         if cell is not None or extra:
-            yield row, (cell or b"") + extra
+            yield row, ([(decision_column, cell)] if cell is not None else []) + extra
     for row in block_rows[index:]:
         yield row, block[row]
 

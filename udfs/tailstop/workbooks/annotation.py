@@ -8,11 +8,15 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
-from .log_layout import LIVE_NOTE_LINES, LogAnalysis, LogRange, block_layout
+from openpyxl.utils.cell import get_column_letter
+
+from ..sheet import cells
+from .cell_check import sheet_reference
+from .log_layout import LIVE_NOTE_LINES, LogAnalysis, LogRange, block_layout, find_column, header_row_of
 from .package import GRID_COLUMNS
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "BLOCK_GAP", "OUTPUT_SUFFIX", "check_log_column", "default_output",
-           "place_columns"]
+           "place_columns", "column_number_of", "first_log_row"]
 
 OUTPUT_SUFFIX = "-tailstop"
 BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
@@ -45,6 +49,8 @@ class AnnotateResult:
         For a long log edited as bytes (``annotate_stream``): the parts of the
         package copied unchanged (checked by size and CRC); ``cells_checked``
         then counts the log sheet's cells. None when the book went through openpyxl.
+    header : str
+        The text of the header cell (the row above ``log.first_row``).
     """
 
     path: Path
@@ -58,6 +64,7 @@ class AnnotateResult:
     losses: list
     live: bool
     copied_parts: int | None = None
+    header: str = ""
 
 
 def default_output(source) -> Path:
@@ -66,22 +73,78 @@ def default_output(source) -> Path:
     return source.with_name(f"{source.stem}{OUTPUT_SUFFIX}.xlsx")
 
 
-def place_columns(title, max_column, analysis, live):
-    """The decision column right of everything on the sheet, then the estimate block's label column and layout."""
-    decision_column = max_column + 1
-    label_column = decision_column + 1 + BLOCK_GAP
-    if label_column + 1 > GRID_COLUMNS:
-        raise AnnotateRefused(f"sheet {title!r} has no free columns on the right for the decision column and "
-                              "the estimate block")
-    layout = block_layout(1, label_column, LIVE_NOTE_LINES if live else len(analysis.notes))
-    return decision_column, label_column, layout
+def place_columns(log, occupancy, analysis, live, into=None):
+    """The decision column, the estimate block's label column and its layout, over no cell that holds anything.
+
+    The decision column covers the header row and the log's rows: the column ``into`` names, or the first
+    column right of the log free there. The block takes the first two adjacent columns, at least
+    ``BLOCK_GAP`` columns right of the decision column, that are free in the block's rows.
+    """
+    rows = (log.first_row - 1, log.last_row)
+    if into is not None:
+        decision_column = _into_column(log, occupancy, into, rows)
+    else:
+        decision_column = next((column for column in range(log.column + 1, GRID_COLUMNS + 1)
+                                if occupancy.free(column, *rows)), None)
+    notes = LIVE_NOTE_LINES if live else len(analysis.notes)
+    probe = block_layout(1, 1, notes)
+    block_rows = (probe.top_row, probe.last_row)
+    start = GRID_COLUMNS if decision_column is None else decision_column + 1 + BLOCK_GAP
+    label_column = next((column for column in range(start, GRID_COLUMNS)
+                         if occupancy.free(column, *block_rows) and occupancy.free(column + 1, *block_rows)), None)
+    if decision_column is None or label_column is None:
+        raise AnnotateRefused(f"sheet {sheet_reference(log.sheet_title)} has no free columns right of the log for "
+                              "the decision column and the estimate block")
+    return decision_column, label_column, block_layout(1, label_column, notes)
+
+
+def _into_column(log, occupancy, into, rows):
+    try:
+        column = find_column({}, int(into) if str(into).strip().isdigit() else into)
+    except ValueError as problem:
+        raise AnnotateRefused(f"--into: {problem}") from None
+    letter = get_column_letter(column)
+    if column == log.column:
+        raise AnnotateRefused(f"--into {letter} is the log column itself; choose an empty column")
+    taken = occupancy.first_taken(column, *rows)
+    if taken is not None:
+        raise AnnotateRefused(f"--into {letter}: {sheet_reference(log.sheet_title)}!{letter}{taken} already holds "
+                              f"a cell (rows {rows[0]} to {rows[1]} of that column must be empty); choose another "
+                              "column, or leave --into out to take the first free one")
+    return column
+
+
+def column_number_of(title, top_cells, column, header_row):
+    """``log_layout.find_column`` with its problem as a refusal."""
+    if header_row is not None and header_row < 1:
+        raise AnnotateRefused(f"--header-row must be a row number, 1 or more (got {header_row})")
+    try:
+        return find_column(top_cells, column, header_row)
+    except ValueError as problem:
+        raise AnnotateRefused(f"sheet {title!r}: {problem}") from None
+
+
+def first_log_row(title, number, found, header_row):
+    """The header's row of the log column (``header_row_of``); refused when no caption stands above the log."""
+    header = header_row_of(found, header_row)
+    if header is not None:
+        return header
+    letter = get_column_letter(number)
+    first = min((row for row, value in found.items() if not cells.is_blank(value)), default=None)
+    if first is None:
+        raise AnnotateRefused(f"column {letter} of sheet {title!r} is empty: no log to annotate")
+    shown = cells.describe(found[first]).removeprefix("holds ")
+    raise AnnotateRefused(f"{sheet_reference(title)}!{letter}{first} holds {shown}, the column's first value, and "
+                          "no header stands above it: the row above the log must hold the column's header; insert "
+                          "a header row, or give --header-row")
 
 
 def check_log_column(log, header_value):
     """Refuse a log column without a header or without a log."""
+    header_row = log.first_row - 1
     if isinstance(header_value, (int, float)) and not isinstance(header_value, bool):
-        raise AnnotateRefused(f"{log.address(1)} holds {header_value:g}: row 1 must hold the column's header, "
-                              "with the log from row 2 down; insert a header row")
+        raise AnnotateRefused(f"{log.address(header_row)} holds {header_value:g}: the header row must hold the "
+                              "column's header, with the log below it; insert a header row")
     if log.rows == 0:
-        raise AnnotateRefused(f"{log.address(2)} and the rows below are empty: no log to annotate in column "
-                              f"{log.letter} of sheet {log.sheet_title!r}")
+        raise AnnotateRefused(f"{log.address(log.first_row)} and the rows below are empty: no log to annotate in "
+                              f"column {log.letter} of sheet {log.sheet_title!r}")

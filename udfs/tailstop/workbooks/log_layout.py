@@ -21,6 +21,7 @@ see docs/recalc-engine.md).
 """
 from __future__ import annotations
 
+import bisect
 from dataclasses import dataclass, field
 
 from openpyxl.cell.cell import Cell
@@ -35,6 +36,7 @@ from ..sheet import cells
 from . import row_cells
 from .cached_values import set_formula
 from .cell_check import collector_paused, sheet_reference
+from .safe_io import column_from_headers
 
 __all__ = [
     "RulePlan",
@@ -46,6 +48,10 @@ __all__ = [
     "BLOCK_TITLE",
     "LIVE_NOTE_LINES",
     "read_log_range",
+    "HEADER_SEARCH_ROWS",
+    "header_row_of",
+    "find_column",
+    "Occupancy",
     "sheet_reference",
     "analyse_log",
     "block_layout",
@@ -193,6 +199,108 @@ def read_log_range(sheet, column, first_row=2):
         values.pop()
     last_row = first_row + len(values) - 1
     return LogRange(sheet.title, column, first_row, last_row), values
+
+
+# Rows searched for a header text given as --column (title rows, a merged title, notes above the log)
+HEADER_SEARCH_ROWS = 100
+
+
+def header_row_of(column_values: dict, header_row=None):
+    """The header's row of a log column: the last caption above its first value (None if there is none).
+
+    ``column_values`` maps row -> raw value (blank rows may be missing); ``header_row`` given by the user wins.
+    Blank cells and captions (``cells.is_header_text``) may stand above the log; the first other cell starts it.
+    """
+    if header_row is not None:
+        return header_row
+    header = None
+    for row in sorted(column_values):
+        value = column_values[row]
+        if cells.is_blank(value):
+            continue
+        if not cells.is_header_text(value):
+            break
+        header = row
+    return header
+
+
+def find_column(top_cells: dict, key, header_row=None) -> int:
+    """The log column from a letter, a number or a header text found in the top rows.
+
+    ``top_cells`` maps (row, column) -> raw value for the rows up to ``HEADER_SEARCH_ROWS`` (or the
+    header row). A text matches a cell of any of those rows (or of ``header_row`` only, when given),
+    ignoring case and surrounding spaces.
+
+    Raises
+    ------
+    ValueError
+        As ``safe_io.column_from_headers``: no such column (listing the texts of the row that looks like
+        the header row), or a text found in two columns.
+    """
+    if isinstance(key, int) and not isinstance(key, bool):
+        return column_from_headers({}, key)
+    wanted = str(key).strip().casefold()
+    matches, by_row = {}, {}
+    for (row, column), value in top_cells.items():
+        if not isinstance(value, str) or (header_row is not None and row != header_row):
+            continue
+        by_row.setdefault(row, {})[column] = value
+        if value.strip().casefold() == wanted:
+            matches.setdefault(column, value)
+    # for the message: the row holding the most texts, the first of them on a tie
+    listed = max(sorted(by_row), key=lambda row: len(by_row[row]), default=None)
+    headers = dict(by_row.get(listed, {}))
+    headers.update(matches)
+    return column_from_headers(headers, key)
+
+
+class Occupancy:
+    """Which rows of each column hold a cell (any cell element, styled blanks too) or a merged range.
+
+    Cells are added column by column in increasing rows (``add``), or in any order through ``from_keys``.
+    """
+
+    def __init__(self):
+        self._starts, self._ends = {}, {}
+        self._merged = []
+
+    @classmethod
+    def from_keys(cls, keys, merged=()):
+        found = cls()
+        for row, column in sorted(keys, key=lambda key: (key[1], key[0])):
+            found.add(row, column)
+        for rectangle in merged:
+            found.add_merged(*rectangle)
+        return found
+
+    def add(self, row, column):
+        starts, ends = self._starts.get(column), self._ends.get(column)
+        if starts is None:
+            self._starts[column], self._ends[column] = [row], [row]
+        elif ends[-1] + 1 >= row >= starts[-1]:
+            ends[-1] = max(ends[-1], row)
+        else:
+            starts.append(row)
+            ends.append(row)
+
+    def add_merged(self, min_column, min_row, max_column, max_row):
+        self._merged.append((min_column, min_row, max_column, max_row))
+
+    def first_taken(self, column, first_row, last_row):
+        """The first row in first_row..last_row where ``column`` holds something, or None."""
+        taken = []
+        starts, ends = self._starts.get(column, []), self._ends.get(column, [])
+        index = bisect.bisect_right(starts, last_row) - 1
+        while index >= 0 and ends[index] >= first_row:
+            taken.append(max(starts[index], first_row))
+            index -= 1
+        for min_column, min_row, max_column, max_row in self._merged:
+            if min_column <= column <= max_column and min_row <= last_row and max_row >= first_row:
+                taken.append(max(min_row, first_row))
+        return min(taken, default=None)
+
+    def free(self, column, first_row, last_row) -> bool:
+        return self.first_taken(column, first_row, last_row) is None
 
 
 # --------------------------------------------------------------------------- the figures

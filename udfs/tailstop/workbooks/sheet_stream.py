@@ -43,6 +43,8 @@ __all__ = [
     "StylesEdit",
     "cell_markup",
     "extended_rows",
+    "cell_positions",
+    "merged_ranges",
     "edit_head",
     "edit_tail",
     "MAIN_NAMESPACE",
@@ -59,6 +61,8 @@ _ROW_NUMBER = re.compile(rb'\br="([0-9]+)"')
 _SPANS = re.compile(rb'\sspans="[^"]*"')
 _CELL_START = re.compile(rb"<c[\s/>]")
 _CELL_COLUMN = re.compile(rb'<c r="([A-Z]{1,3})[0-9]')
+_CELL_REF = re.compile(rb'<c r="([A-Z]{1,3})([0-9]+)"')
+_MERGE_REF = re.compile(rb'<mergeCell\b[^>]*?\bref="([A-Z]{1,3}[0-9]+(?::[A-Z]{1,3}[0-9]+)?)"')
 _MERGE = re.compile(rb'<mergeCell\b[^>]*?\bref="([A-Z]{1,3})[0-9]+(?::([A-Z]{1,3})[0-9]+)?"')
 _DIMENSION = re.compile(rb'(<dimension\b[^>]*?\bref=")([^"]*)(")')
 _COLS = re.compile(rb"<cols>(.*?)</cols>|<cols\s*/>", re.S)
@@ -273,6 +277,25 @@ class SheetShape:
             self.max_column = max(self.max_column, column_index_from_string((last or first).decode()))
 
 
+def cell_positions(piece: bytes, columns: dict):
+    """(row, column) of every cell element of a slice, styled blanks included, in document order.
+
+    ``columns`` caches column letters -> number across slices.
+    """
+    for letters, row in _CELL_REF.findall(piece):
+        column = columns.get(letters)
+        if column is None:
+            column = columns[letters] = column_index_from_string(letters.decode())
+        yield int(row), column
+
+
+def merged_ranges(tail: bytes):
+    """(min column, min row, max column, max row) of every merged range in the part after the rows."""
+    from openpyxl.utils.cell import range_boundaries
+
+    return [range_boundaries(ref.decode()) for ref in _MERGE_REF.findall(tail)]
+
+
 # --------------------------------------------------------------------------- cells and rows
 
 
@@ -306,11 +329,13 @@ def cell_markup(coordinate: str, style: int, data_type: str, value, cached=None)
 
 
 def extended_rows(sheet: SheetXml, additions, last_column: int):
-    """The sheet's rows with ``additions`` — ``(row, markup)`` in increasing row order — appended.
+    """The sheet's rows with ``additions`` — ``(row, [(column, markup), ...])`` in increasing row order — added.
 
-    A row that exists gets the markup before its ``</row>`` (a ``spans``
-    hint is widened to ``last_column``); a row that does not is inserted in
-    order. Yields pieces of bytes.
+    In a row that exists each new cell goes before the first cell of a
+    column right of it, or before ``</row>`` (cells stay in column order; a
+    ``spans`` hint is widened to ``last_column``); a row that does not exist
+    is inserted in order. The columns of new cells hold no cell of the row.
+    Yields pieces of bytes.
     """
     xml, limit = sheet.xml, sheet.end
     pending = next(additions, None)
@@ -322,36 +347,59 @@ def extended_rows(sheet: SheetXml, additions, last_column: int):
         while pending is not None and pending[0] < row:
             yield xml[position: match.start()]
             position = match.start()
-            yield b'<row r="%d">' % pending[0] + pending[1] + b"</row>"
+            yield b'<row r="%d">' % pending[0] + _joined(pending[1]) + b"</row>"
             pending = next(additions, None)
         if pending is None or pending[0] != row:
             continue
         attributes = _widened(match.group(1), last_column)
         yield xml[position: match.start()]
         if match.group(2):
-            yield b"<row" + attributes + b">" + pending[1] + b"</row>"
+            yield b"<row" + attributes + b">" + _joined(pending[1]) + b"</row>"
             position = match.end()
         else:
             end = xml.find(b"</row>", match.end(), limit)
             if end < 0:
                 raise NotStreamable(f"row {row} is not closed")
             yield b"<row" + attributes + b">"
-            yield xml[match.end(): end]
-            yield pending[1]
+            yield _merged_cells(xml[match.end(): end], pending[1])
             position = end
         pending = next(additions, None)
     yield xml[position: limit]
     while pending is not None:
-        yield b'<row r="%d">' % pending[0] + pending[1] + b"</row>"
+        yield b'<row r="%d">' % pending[0] + _joined(pending[1]) + b"</row>"
         pending = next(additions, None)
+
+
+def _joined(cells):
+    return b"".join(markup for _, markup in sorted(cells, key=lambda cell: cell[0]))
+
+
+def _merged_cells(content: bytes, cells) -> bytes:
+    """A row's cell markup with new ``(column, markup)`` cells put in column order among its own."""
+    cells = sorted(cells, key=lambda cell: cell[0])
+    starts = [(column_index_from_string(found.group(1).decode()), found.start())
+              for found in _CELL_REF.finditer(content)]
+    pieces, position, index = [], 0, 0
+    for column, start in starts:
+        while index < len(cells) and cells[index][0] < column:
+            pieces += [content[position:start], cells[index][1]]
+            position = start
+            index += 1
+        if index < len(cells) and cells[index][0] == column:
+            raise NotStreamable(f"a new cell in column {column} meets an existing one")
+    pieces.append(content[position:])
+    pieces += [markup for _, markup in cells[index:]]
+    return b"".join(pieces)
 
 
 def _widened(attributes, last_column):
     found = _SPANS.search(attributes)
     if found is None:
         return attributes
-    low = found.group(0).split(b'"')[1].split(b":")[0] or b"1"
-    return attributes[: found.start()] + b' spans="%s:%d"' % (low, last_column) + attributes[found.end():]
+    bounds = found.group(0).split(b'"')[1].split(b":")
+    low = bounds[0] or b"1"
+    high = max(last_column, int(bounds[-1])) if bounds[-1].isdigit() else last_column
+    return attributes[: found.start()] + b' spans="%s:%d"' % (low, high) + attributes[found.end():]
 
 
 # --------------------------------------------------------------------------- the elements around the rows

@@ -1,0 +1,210 @@
+"""annotate on a log as an engineer keeps one: title rows, a merged title, the header in row 3, serial numbers,
+dates, remarks, a summary block to the right, an AVERAGE row, blank rows and a second sheet.
+
+Every check runs through both annotate paths (openpyxl, and the byte editor forced by a size threshold of one
+byte), and the written books are opened in headless LibreOffice.
+"""
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+import pytest
+from openpyxl.utils.cell import range_boundaries
+
+import tailstop.workbooks.annotate_stream as annotate_stream
+from libreoffice import LibreOfficeFailed, convert_with_libreoffice, find_soffice
+from tailstop.commands import main
+from tailstop.workbooks.annotate import annotate
+from tailstop.workbooks.cached_values import EXCEL_ERRORS
+from tailstop.workbooks.log_layout import DECISION_HEADER, RulePlan
+from test_annotate import all_cells, rule_stop
+
+SHEET = "Bearing test"
+THRESHOLD, ACCURACY, PILOT = 1500.0, 2.0, 10
+BLANK_AFTER = (5, 17)  # a blank row follows these units
+HEADER_ROW, FIRST_ROW = 3, 4
+
+
+def bearing_hours(units=60, seed=7):
+    """Seeded gamma draws rounded like a bench log (input data only, never a check value)."""
+    rng = np.random.default_rng(seed)
+    return [float(value) for value in np.round(rng.gamma(2.4, 700.0, size=units), 1)]
+
+
+def bearing_log(path, hours=None, *, average=True):
+    """The log: A serial, B date, C hours to failure, D remark; a summary block in G3:H5; a second sheet."""
+    hours = bearing_hours() if hours is None else hours
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = SHEET
+    sheet["A1"] = "Bearing life test B-7 (rig 2)"
+    sheet.merge_cells("A1:E2")
+    for column, text in enumerate(["Serial", "Date", "Hours to failure", "Remark"], start=1):
+        sheet.cell(HEADER_ROW, column, text)
+    row = FIRST_ROW
+    for index, value in enumerate(hours):
+        if index in BLANK_AFTER:
+            row += 1
+        sheet.cell(row, 1, f"SN-{1000 + index}")
+        sheet.cell(row, 2, dt.date(2026, 3, 2) + dt.timedelta(days=index))
+        sheet.cell(row, 2).number_format = "yyyy-mm-dd"
+        sheet.cell(row, 3, value)
+        if index % 9 == 4:
+            sheet.cell(row, 4, "noisy at start")
+        row += 1
+    last = row - 1
+    if average:
+        sheet.cell(row, 2, "Average")
+        sheet.cell(row, 3, f"=AVERAGE(C{FIRST_ROW}:C{last})")
+    sheet["G3"], sheet["G4"], sheet["H4"] = "Summary", "Units", f"=COUNT(C{FIRST_ROW}:C{last})"
+    sheet["G5"], sheet["H5"] = "Mean", f"=AVERAGE(C{FIRST_ROW}:C{last})"
+    book.create_sheet("Rig notes")["A1"] = "Rig 2 calibrated 2026-02-28"
+    book.save(path)
+    return path
+
+
+def log_rows(hours):
+    """Sheet row of each unit."""
+    rows, row = [], FIRST_ROW
+    for index in range(len(hours)):
+        if index in BLANK_AFTER:
+            row += 1
+        rows.append(row)
+        row += 1
+    return rows
+
+
+def the_plan():
+    return RulePlan.checked(THRESHOLD, ACCURACY, 0.95, PILOT)
+
+
+@pytest.fixture(params=[False, True], ids=["openpyxl", "streamed"])
+def streaming(request, monkeypatch):
+    monkeypatch.setattr(annotate_stream, "STREAM_FROM_BYTES", 1 if request.param else 2**40)
+    return request.param
+
+
+def run(capsys, *arguments):
+    code = main(["annotate", *map(str, arguments)])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+RULE = ["--threshold", THRESHOLD, "--accuracy", ACCURACY, "--pilot", PILOT]
+
+
+# --------------------------------------------------------------------------- the header need not be in row 1
+
+
+@pytest.mark.parametrize("column", ["C", "Hours to failure", " hours TO failure "])
+def test_the_header_below_title_rows_is_found(tmp_path, capsys, streaming, column):
+    hours = bearing_hours()
+    path = bearing_log(tmp_path / "bearing.xlsx", hours, average=False)
+    code, out, err = run(capsys, path, "--column", column, *RULE)
+    assert code == 0 and err == ""
+    assert "  header: row 3 ('Hours to failure'); the log is rows 4 to 65" in out
+    assert ("edited as a stream" in out) == streaming
+    sheet = openpyxl.load_workbook(tmp_path / "bearing-tailstop.xlsx")[SHEET]
+    assert sheet["E3"].value == DECISION_HEADER
+    rows = log_rows(hours)
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
+    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    assert [sheet.cell(row, 5).value for row in rows] == expected
+    assert [sheet.cell(row, 5).value for row in (1, 2, 9, 22)] == [None] * 4  # title rows and blank rows
+    assert f"decision: STOP at row {rows[stop - 1]}, after {stop} units" in out
+
+
+def test_header_row_given(tmp_path, capsys, streaming):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    code, out, _ = run(capsys, path, "--column", "Hours to failure", "--header-row", 3, *RULE)
+    assert code == 0 and "header: row 3 ('Hours to failure')" in out
+    code, _, err = run(capsys, path, "--column", "Hours to failure", "--header-row", 1, *RULE,
+                       "--out", tmp_path / "other.xlsx")
+    assert code == 1 and "no column 'Hours to failure'" in err and "Bearing life test" in err
+
+
+def test_a_text_that_is_no_header_lists_the_header_row(tmp_path, capsys, streaming):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    code, _, err = run(capsys, path, "--column", "Hours", *RULE)
+    assert code == 1
+    assert "no column 'Hours': not a column letter, and the headers are 'Serial', 'Date', 'Hours to failure'" in err
+
+
+def test_the_average_row_is_named_as_a_formula(tmp_path, capsys, streaming):
+    path = bearing_log(tmp_path / "bearing.xlsx")
+    code, out, err = run(capsys, path, "--column", "C", *RULE)
+    assert code == 1 and out == ""
+    assert err.strip() == ("tailstop annotate: 'Bearing test'!C66 holds a formula (=AVERAGE(C4:C65)); a summary row "
+                           "inside the log would be counted as a unit: move it below the range or out of the column")
+
+
+# --------------------------------------------------------------------------- where the decision column goes
+
+
+def test_the_decisions_go_next_to_the_log_and_the_block_past_the_summary(tmp_path, streaming):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    before = all_cells(path)
+    result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "out.xlsx")
+    # D holds remarks in some log rows, E is free from the header row down; G:H hold the summary in rows 3-5
+    assert result.decision_column == 5
+    assert result.block.startswith("I1:J")
+    after = all_cells(result.path)
+    for title, cells in before.items():
+        assert {coordinate: after[title].get(coordinate) for coordinate in cells} == cells
+    added = {coordinate for coordinate in after[SHEET] if coordinate not in before[SHEET]}
+    assert {openpyxl.utils.cell.coordinate_from_string(coordinate)[0] for coordinate in added} == {"E", "I", "J"}
+    assert after["Rig notes"] == before["Rig notes"]
+
+
+def test_into_a_column_of_the_user_s_choice(tmp_path, capsys, streaming):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    code, out, _ = run(capsys, path, "--column", "C", "--into", "F", *RULE)
+    assert code == 0 and "decision column 'Bearing test'!F" in out
+    assert openpyxl.load_workbook(tmp_path / "bearing-tailstop.xlsx")[SHEET]["F3"].value == DECISION_HEADER
+    for column, cell in (("D", "D3"), ("G", "G3"), ("C", None)):  # D3 the header "Remark", G3 "Summary"
+        code, _, err = run(capsys, path, "--column", "C", "--into", column, *RULE, "--out", tmp_path / "x.xlsx")
+        assert code == 1 and not (tmp_path / "x.xlsx").exists()
+        assert (f"'Bearing test'!{cell} already holds a cell" in err) if cell else "the log column itself" in err
+
+
+# --------------------------------------------------------------------------- in a spreadsheet program
+
+
+@pytest.fixture(scope="module")
+def soffice():
+    if find_soffice() is None:
+        pytest.skip("LibreOffice is not installed (no soffice on PATH)")
+    return find_soffice()
+
+
+def shown_errors(book):
+    return [(sheet.title, cell.coordinate, cell.value) for sheet in book.worksheets for row in sheet.iter_rows()
+            for cell in row if cell.data_type == "e" or cell.value in EXCEL_ERRORS]
+
+
+@pytest.mark.parametrize("live", [False], ids=["values"])
+def test_libreoffice_shows_what_was_written(tmp_path, soffice, streaming, live):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "out.xlsx", live=live)
+    try:
+        shown = openpyxl.load_workbook(convert_with_libreoffice(result.path, tmp_path / "lo"), data_only=True)
+    except LibreOfficeFailed as problem:
+        pytest.fail(f"LibreOffice could not open the annotated log: {problem}")
+    assert shown_errors(shown) == []
+    written = openpyxl.load_workbook(result.path, data_only=True)[SHEET]
+    low, _, high, last = range_boundaries(result.block)
+    checked = 0
+    for row in range(1, max(last, result.log.last_row) + 1):
+        for column in (result.decision_column, low, high):
+            stored = written.cell(row, column).value
+            seen = shown[SHEET].cell(row, column).value
+            if isinstance(stored, float):
+                assert seen == pytest.approx(stored, rel=1e-14), (row, column)
+            else:
+                assert (seen or None) == (stored or None), (row, column)
+            checked += stored is not None
+    assert checked > 80
+    assert shown[SHEET]["H5"].value == pytest.approx(np.mean(bearing_hours()))  # the user's own formula
