@@ -275,7 +275,7 @@ def test_suspended_units_in_a_gamma_method_and_the_counts_in_the_block(tmp_path,
     result = annotate(path, column="D", plan=plan(method="known-shape", shape=2.4), live=live,
                       out=tmp_path / "annotated.xlsx")
     sheet = openpyxl.load_workbook(result.path, data_only=True)[LOG_SHEET]
-    block = {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 40)}
+    block = {sheet.cell(row, 10).value: sheet.cell(row, 11).value for row in range(1, 40)}
     used = block["Units used, N"]
     suspended = sum(isinstance(v, str) for v in lifetimes[:used])
     assert block["  of which suspended (marked +)"] == suspended > 0
@@ -289,8 +289,8 @@ def test_suspended_units_in_a_gamma_method_and_the_counts_in_the_block(tmp_path,
     if live:
         computed = evaluate_workbook(result.path)
         for row in range(11, 25):
-            stored = sheet.cell(row, 13).value
-            engine = computed.get((LOG_SHEET.upper(), f"M{row}"))
+            stored = sheet.cell(row, 11).value
+            engine = computed.get((LOG_SHEET.upper(), f"K{row}"))
             if isinstance(stored, float):
                 assert engine == pytest.approx(stored, rel=1e-12), row
 

@@ -147,11 +147,15 @@ def _estimate_line(threshold, figures):
 
 
 def _is_message(value):
-    return isinstance(value, str) and value.startswith(cells.ERROR_PREFIX)
+    from ..sheet.cells import ERROR_PREFIX
+
+    return isinstance(value, str) and value.startswith(ERROR_PREFIX)
 
 
 def _message(value):
-    return value.removeprefix(cells.ERROR_PREFIX).strip()
+    from ..sheet.cells import ERROR_PREFIX
+
+    return value.removeprefix(ERROR_PREFIX).strip()
 
 
 def _figure(value):
