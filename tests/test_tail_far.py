@@ -69,3 +69,31 @@ def test_p_just_below_the_switch_to_logs_keeps_its_digits(shape, t):
     exact = mpmath.gammainc(shape, t, mpmath.inf, regularized=True)
     assert mpmath.mpf("1e-330") < exact < mpmath.mpf("1e-290")
     assert float(tail_probability_standard(shape, t).p) == pytest.approx(float(exact), rel=1e-12)
+
+
+@pytest.mark.parametrize("shape, t", [(10.0, 3.0), (50.0, 61.0), (1e3, 1e3 + 1e-6), (1e4, 9000.0), (1e5, 112176.85724295325),
+                                      (1e5, 98504.02706509772), (1e6, 1e6 + 2500.0), (1e7, 9.98e6)])
+def test_log_density_term_of_huge_shapes(shape, t):
+    # check value: mpmath at 60 digits. a log t, t and log Γ(a) are each about a log a; their
+    # plain difference loses their rounding (1e-10 at a = 1e5), the Stirling form does not.
+    assert float(log_density_term(shape, t)) == pytest.approx(float(mp_log_density(shape, t)), abs=1e-12)
+
+
+def test_far_upper_tail_of_a_huge_shape():
+    from tailstop.sheet import TAIL_PROB
+
+    # check value: mpmath.gammainc at 60 digits, 1.000000000000579e-300
+    exact = mpmath.gammainc(100000, mpmath.mpf(112176.85724295325), mpmath.inf, regularized=True)
+    assert TAIL_PROB(112176.85724295325, 100000, 1) == pytest.approx(float(exact), rel=1e-12)
+
+
+def test_shapes_beyond_the_guaranteed_range_are_refused():
+    from tailstop.core.models.gamma.tail import LARGEST_SHAPE, tail_probability
+    from tailstop.sheet import TAIL_PROB, UNITS_REQUIRED
+
+    assert LARGEST_SHAPE == 1e5
+    assert TAIL_PROB(1e5, LARGEST_SHAPE, 1.0) > 0
+    with pytest.raises(ValueError, match="shape above 100,000"):
+        tail_probability(1e6, 2e5, 5.0)
+    assert TAIL_PROB(1e6, 2e5, 5.0).startswith("#TAILSTOP! a gamma shape above 100,000 is beyond the range")
+    assert UNITS_REQUIRED(1e6, 2e5, 5.0, 1.5, 0.95, "fitted-shape").startswith("#TAILSTOP! a gamma shape above")

@@ -50,10 +50,30 @@ def mp_fitted_sigma2(a, t):
     return float(quad / (pv * (1 - pv)) ** 2)
 
 
-@pytest.mark.parametrize("a,t", [(0.5, 0.2), (1.0, 2.0), (2.0, 1.5), (6.0, 12.0), (40.0, 30.0)])
+@pytest.mark.parametrize("a,t", [(0.5, 0.2), (1.0, 2.0), (2.0, 1.5), (6.0, 12.0), (40.0, 30.0), (0.05, 3.0),
+                                 (0.3, 0.01)])
 def test_fitted_shape_matches_fisher_information_in_mpmath(a, t):
     # check value: METHOD.md §3 formula evaluated independently in mpmath (numerical derivatives + matrix inverse)
-    assert float(sigma2_fitted_shape(a, t)) == pytest.approx(mp_fitted_sigma2(a, t), rel=1e-8)
+    assert float(sigma2_fitted_shape(a, t)) == pytest.approx(mp_fitted_sigma2(a, t), rel=1e-12)
+
+
+@pytest.mark.parametrize("a,t", [(200.0, 260.0), (1000.0, 1100.0), (1e4, 9750.0), (1e5, 100300.0),
+                                 (1e5, 98504.02706509772), (1e5, 112176.85724295325)])
+def test_fitted_shape_keeps_its_digits_at_huge_shapes(a, t):
+    # check value: as above, mpmath at 40 digits. Near t = a the two terms of a u² - 2uv + ψ'(a) v²
+    # cancel to 1/a of their size; written as v²/a + G²/(a(aψ' - 1)) nothing cancels
+    # (1e-4 of σ² used to be lost at a = 1e5, 1e-2 at t = a + 300).
+    assert float(sigma2_fitted_shape(a, t)) == pytest.approx(mp_fitted_sigma2(a, t), rel=3e-12)
+
+
+def test_units_required_at_a_huge_fitted_shape_rounds_up():
+    from tailstop.sheet import UNITS_REQUIRED
+
+    # check value: mpmath at 40 digits, n* = (z / ln 1.5)² σ² = 7036.0006 for a = 1e5, t = 98504.03
+    z = float(mpmath.sqrt(2) * mpmath.erfinv(mpmath.mpf("0.95")))
+    n_star = (z / math.log(1.5)) ** 2 * mp_fitted_sigma2(1e5, 98504.02706509772)
+    assert 7036.0 < n_star < 7036.001
+    assert UNITS_REQUIRED(98504.02706509772, 1e5, 1, 1.5, 0.95, "fitted-shape") == 7037
 
 
 def test_fitting_the_shape_costs_variance():

@@ -8,6 +8,12 @@ computed in logs, so they stay accurate far into either tail:
 * fitted-shape: σ² = gᵀ I⁻¹ g / (p² (1-p)²) with the Fisher information of
   (shape, rate). Writing u = ∂ log q / ∂a and v = f / (p (1-p)) (so that
   b ∂ log q / ∂b = -v), this is (a u² - 2 u v + ψ'(a) v²) / (a ψ'(a) - 1).
+  With G = a u - v, the derivative of log q along a ↦ a e^λ, t ↦ t e^λ
+  (the shape changed at a fixed mean-relative threshold), it is
+  v² / a + G² / (a (a ψ'(a) - 1)): the known-shape σ² plus the price of
+  estimating the shape. G is differentiated numerically on its own; the
+  form in u and v cancels to nothing at large shapes (u ≈ v / a), where it
+  lost 1e-4 of σ² at a = 1e5 and 1e-2 near the mean.
 """
 from __future__ import annotations
 
@@ -22,6 +28,7 @@ __all__ = [
     "sigma2_pass_fail",
     "sigma2_fitted_shape",
     "log_odds_shape_derivative",
+    "log_odds_ray_derivative",
     "density_over_variance",
 ]
 
@@ -48,6 +55,23 @@ def log_odds_shape_derivative(shape, t, relative_step=2e-3):
 
     return (4.0 * central(h / 2.0) - central(h)) / 3.0
 
+def log_odds_ray_derivative(shape, t, relative_step=0.03):
+    """G = d/dλ log q(a e^λ, t e^λ) at λ = 0 (= a ∂log q/∂a - v), by central differences.
+
+    Steps h, h/2 and h/4 in λ, combined by Richardson extrapolation (error
+    O(h⁶)); the six log-odds are computed in one vectorized call. The step is
+    relative, so the accuracy does not depend on the size of the shape: about
+    1e-13 relative for shapes up to 1e3 and 2e-12 at 1e5 (against mpmath).
+    """
+    shape, t = np.broadcast_arrays(np.asarray(shape, dtype=float), np.asarray(t, dtype=float))
+    steps = relative_step / np.array([1.0, 2.0, 4.0])
+    factors = np.exp(np.concatenate([steps, -steps])).reshape((6,) + (1,) * shape.ndim)
+    log_odds = tail_probability_standard(shape[None] * factors, t[None] * factors).log_odds
+    first, second, third = ((log_odds[i] - log_odds[i + 3]) / (2.0 * steps[i]) for i in range(3))
+    first, second = (4.0 * second - first) / 3.0, (4.0 * third - second) / 3.0
+    return (16.0 * second - first) / 15.0
+
+
 def sigma2_known_shape(shape, t):
     """σ² of log q̂ when the shape is known and the scale is estimated by ML."""
     shape = np.asarray(shape, dtype=float)
@@ -62,7 +86,6 @@ def sigma2_fitted_shape(shape, t):
     """σ² of log q̂ when shape and scale are both estimated by gamma ML."""
 
     shape = np.asarray(shape, dtype=float)
-    u = log_odds_shape_derivative(shape, t)
+    ray = log_odds_ray_derivative(shape, t)
     v = density_over_variance(shape, t)
-    quadratic = shape * u * u - 2.0 * u * v + special.polygamma(1, shape) * v * v
-    return quadratic / trigamma_excess(shape)
+    return (v * v + ray * ray / trigamma_excess(shape)) / shape
