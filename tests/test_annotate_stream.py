@@ -297,7 +297,9 @@ def test_rows_the_log_lacks_are_inserted_in_order(tmp_path):
                                     tag=f"-{live}")
         assert all_cells(streamed.path) == all_cells(full.path)
         rows = [int(number) for number in re.findall(rb'<row r="([0-9]+)"', sheet_part(streamed.path, "Log"))]
-        assert rows == list(range(1, max(rows) + 1))
+        # in order, and the rows openpyxl writes (a row with no cell at all has no element in either)
+        assert rows == sorted(set(rows))
+        assert rows == [int(n) for n in re.findall(rb'<row r="([0-9]+)"', sheet_part(full.path, "Log"))]
 
 
 @settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])

@@ -33,7 +33,9 @@ def add_arguments(parser):
     parser.add_argument("--confidence", default="0.95", help="confidence level, e.g. 0.95 (default)")
     parser.add_argument("--pilot", required=True, help="units tested before the rule is first consulted (>= 2)")
     parser.add_argument("--method", default="pass-fail", help="pass-fail (default), known-shape or fitted-shape")
-    parser.add_argument("--shape", help="the gamma shape, for known-shape")
+    parser.add_argument("--shape", help="the shape of the model, for known-shape")
+    parser.add_argument("--model", help="lifetime model of known-shape and fitted-shape: gamma (default), "
+                                        "weibull or lognormal")
     parser.add_argument("--check-every", default="1", help="consult the rule every k-th unit after the pilot "
                                                           "(default 1)")
     parser.add_argument("--out", metavar="NEW.xlsx", help="where to write (default: LOG-tailstop.xlsx beside the "
@@ -70,7 +72,7 @@ def run(args, out=None, err=None):
         if args.force and not args.in_place:
             raise AnnotateRefused("--force applies to --in-place only")
         plan = RulePlan.checked(args.threshold, args.accuracy, args.confidence, args.pilot, args.method,
-                                args.shape, args.check_every)
+                                args.shape, args.check_every, args.model)
         result = annotate(args.log, column=args.column, plan=plan, sheet=args.sheet, out=args.out,
                           in_place=args.in_place, backup=not args.no_backup, live=args.live,
                           allow_lossy=args.allow_lossy, force=args.force, header_row=args.header_row,

@@ -56,8 +56,13 @@ HELP = "What the sequential stopping rule will do under a planning guess: the th
 
 def add_arguments(parser):
     parser.add_argument("--threshold", type=float, required=True, help="the threshold c (mission time, warranty limit)")
-    parser.add_argument("--shape", type=float, required=True, help="guessed gamma shape a > 0")
-    parser.add_argument("--scale", type=float, required=True, help="guessed gamma scale s > 0, unit of the lifetimes")
+    parser.add_argument("--shape", type=float, required=True,
+                        help="guessed shape > 0 of the model (gamma a, Weibull beta, lognormal sigma)")
+    parser.add_argument("--scale", type=float, required=True,
+                        help="guessed scale > 0 of the model, unit of the lifetimes (gamma s, Weibull eta, "
+                             "lognormal median)")
+    parser.add_argument("--model", default="gamma", type=str.lower, choices=("gamma", "weibull", "lognormal"),
+                        help="lifetime model of the guess (default gamma); pass-fail stays exact")
     parser.add_argument("--accuracy", type=float, required=True, help="odds to be known within this factor d > 1")
     parser.add_argument("--confidence", type=float, default=0.95, help="confidence level, e.g. 0.95 (default)")
     parser.add_argument("--pilot", type=int, default=10, help="pilot sample, units before the rule is consulted (default 10)")
@@ -90,25 +95,26 @@ def run(args, out=None, progress_stream=None):
     bar = ProgressBar("simulating", progress_stream)
     try:
         comparison = operating.compare_methods(*plan, replications=args.replications, seed=args.seed,
-                                               fitted_replications=args.fitted_replications, progress=bar)
+                                               fitted_replications=args.fitted_replications, progress=bar,
+                                               model=args.model)
     finally:
         bar.close()
     first = comparison.results["pass-fail"]
-    print(f"Plan: threshold {args.threshold:g}, gamma shape {args.shape:g}, scale {args.scale:g}; "
+    print(f"Plan: threshold {args.threshold:g}, {args.model} shape {args.shape:g}, scale {args.scale:g}; "
           f"odds within x{args.accuracy:g} at {args.confidence:g} confidence; pilot {args.pilot}", file=out)
     print(f"True probability beyond the threshold under the guess: p = {first.probability:.6g}", file=out)
     print(file=out)
     print(_aligned(comparison.table()), file=out)
     if args.calibrate:
         print(file=out)
-        print(_aligned(_calibration_table(plan, counts, args.seed, progress_stream)), file=out)
+        print(_aligned(_calibration_table(plan, counts, args.seed, progress_stream, args.model)), file=out)
         print("Calibration simulates on common random numbers (every run sees the same lifetimes at every z'), "
               "so its coverage at z can differ from the table above within Monte Carlo error; "
               "(a..b): the z' where coverage + 2 s.e. and coverage - 2 s.e. reach the nominal level.", file=out)
     if args.png:
-        _plot(args.png, plan, comparison, counts, args.seed, progress_stream)
+        _plot(args.png, plan, comparison, counts, args.seed, progress_stream, args.model)
         print(f"\nPlot written to {args.png}", file=out)
-    print("\nFigures assume independent units with gamma lifetimes at the guessed parameters "
+    print(f"\nFigures assume independent units with {args.model} lifetimes at the guessed parameters "
           "(pass-fail: only the probability). Simulated figures: ± one Monte Carlo standard error.", file=out)
     return 0
 
@@ -138,16 +144,16 @@ def _aligned(rows):
     return "\n".join(lines)
 
 
-def _evaluator(plan, method, counts, seed):
+def _evaluator(plan, method, counts, seed, model="gamma"):
     from ..core import operating
 
     if method == "pass-fail":
-        return lambda z: operating.operating_characteristics(*plan, method, stop_z=z)
+        return lambda z: operating.operating_characteristics(*plan, method, stop_z=z, model=model)
     return lambda z: operating.operating_characteristics(*plan, method, replications=counts[method], seed=seed,
-                                                         stop_z=z, common_numbers=True)
+                                                         stop_z=z, common_numbers=True, model=model)
 
 
-def _calibration_table(plan, counts, seed, progress_stream):
+def _calibration_table(plan, counts, seed, progress_stream, model="gamma"):
     from ..core import operating
 
     methods = ("pass-fail", "known-shape", "fitted-shape")
@@ -156,7 +162,7 @@ def _calibration_table(plan, counts, seed, progress_stream):
     for method in methods:
         bar = ProgressBar(f"calibrating {method}", progress_stream)
         try:
-            found[method] = operating.calibrate(_evaluator(plan, method, counts, seed), plan[4], progress=bar)
+            found[method] = operating.calibrate(_evaluator(plan, method, counts, seed, model), plan[4], progress=bar)
         finally:
             bar.close()
 
@@ -195,22 +201,26 @@ def _require_matplotlib():
         raise ValueError("--png needs matplotlib; install the plotting extra: pip install 'tailstop[plot]'") from None
 
 
-def _scale_for(probability, threshold, shape):
-    """The gamma scale that gives P(X > threshold) = probability at this shape."""
+def _scale_for(probability, threshold, shape, model="gamma"):
+    """The scale of the model that gives P(X > threshold) = probability at this shape."""
     from scipy import special
 
+    if model == "weibull":
+        return threshold / (-math.log(probability)) ** (1.0 / shape)
+    if model == "lognormal":
+        return threshold / math.exp(shape * float(special.ndtri(1.0 - probability)))
     return threshold / special.gammainccinv(shape, probability)
 
 
-def _coverage_curves(plan, counts, seed, progress):
+def _coverage_curves(plan, counts, seed, progress, model="gamma"):
     """Coverage against the true probability (odds of the guess × 1/3 .. 3), shape held at the guess."""
     import numpy as np
 
     from ..core import operating
-    from ..core.models.gamma.tail import tail_probability
+    from ..core.models import get_model
 
     threshold, shape, scale, accuracy, confidence, pilot = plan
-    p_guess = float(tail_probability(threshold, shape, scale).p)
+    p_guess = float(get_model(model).tail_probability(threshold, shape, scale).p)
     odds = p_guess / (1 - p_guess)
     curves = {}
     points = {"pass-fail": 25, "known-shape": 9, "fitted-shape": 5}
@@ -222,10 +232,10 @@ def _coverage_curves(plan, counts, seed, progress):
         probabilities = grid / (1 + grid)
         values, errors = [], []
         for p in probabilities:
-            truth = (threshold, shape, _scale_for(p, threshold, shape), accuracy, confidence, pilot)
-            options = {}
+            truth = (threshold, shape, _scale_for(p, threshold, shape, model), accuracy, confidence, pilot)
+            options = {"model": model}
             if method != "pass-fail":
-                options = dict(replications=max(200, counts[method] // share[method]), seed=seed)
+                options.update(replications=max(200, counts[method] // share[method]), seed=seed)
             result = operating.operating_characteristics(*truth, method, **options)
             values.append(result.coverage)
             errors.append(result.coverage_se)
@@ -235,14 +245,14 @@ def _coverage_curves(plan, counts, seed, progress):
     return curves
 
 
-def _plot(path, plan, comparison, counts, seed, progress_stream):
+def _plot(path, plan, comparison, counts, seed, progress_stream, model="gamma"):
     import numpy as np
     from matplotlib.figure import Figure
     from matplotlib.ticker import FuncFormatter
 
     bar = ProgressBar("plotting", progress_stream)
     try:
-        curves = _coverage_curves(plan, counts, seed, bar)
+        curves = _coverage_curves(plan, counts, seed, bar, model)
     finally:
         bar.close()
     figure = Figure(figsize=(11, 4.5), layout="constrained")

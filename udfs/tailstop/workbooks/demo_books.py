@@ -425,6 +425,7 @@ def plan_book():
     caution = sheet.cell(row + SUMMARY_ROWS + 2, 1, "Figures assume independent valves with gamma lifetimes at the "
                                                     "guessed parameters (pass-fail: only the probability).")
     caution.font = SOFT_FONT
+    _three_models(sheet, row + SUMMARY_ROWS + 4, inputs, values, figures, cached)
     sheet.column_dimensions["A"].width = 64
     for letter in "BCDE":
         sheet.column_dimensions[letter].width = 14
@@ -432,6 +433,85 @@ def plan_book():
     _print_one_page_wide(sheet)
     book.active = 1
     return book, cached, figures
+
+
+MODEL_NAMES_SHOWN = ("gamma", "weibull", "lognormal")
+
+
+def matched_models(shape, scale):
+    """(shape, scale) of each model with the mean and standard deviation of the gamma guess (a, s)."""
+    from scipy import optimize, special
+
+    mean, cv2 = shape * scale, 1.0 / shape  # gamma: mean a·s, squared coefficient of variation 1/a
+
+    def weibull_cv2(beta):
+        return math.exp(special.gammaln(1 + 2 / beta) - 2 * special.gammaln(1 + 1 / beta)) - 1 - cv2
+
+    beta = optimize.brentq(weibull_cv2, 0.05, 100.0, xtol=1e-14)
+    sigma2 = math.log1p(cv2)
+    return {
+        "gamma": (shape, scale),
+        "weibull": (beta, mean / math.exp(special.gammaln(1 + 1 / beta))),
+        "lognormal": (math.sqrt(sigma2), mean / math.exp(sigma2 / 2)),
+    }
+
+
+def _three_models(sheet, row, inputs, values, figures, cached):
+    """The team's guess under each lifetime model, matched by mean and standard deviation."""
+    _section(sheet, row, "The same guess under three lifetime models (matched to the gamma guess's mean and spread)")
+    models = matched_models(values["shape"], values["scale"])
+    for index, model in enumerate(MODEL_NAMES_SHOWN):
+        head = sheet.cell(row + 1, 3 + index, model)
+        head.font, head.fill, head.alignment = HEADER_FONT, HEADER_FILL, Alignment(horizontal="center")
+    sheet.cell(row + 2, 1, "Shape (gamma a, Weibull β, lognormal σ)").font = Font(bold=True, color="34495E")
+    sheet.cell(row + 3, 1, f"Scale ({scenario.UNIT}; gamma s, Weibull η, lognormal median)").font = \
+        Font(bold=True, color="34495E")
+    table = (
+        ("P(life > threshold) (TAIL_PROB)", "TAIL_PROB", "0.0000"),
+        ("Units for a fixed-size test, fitted-shape (UNITS_REQUIRED)", "UNITS_REQUIRED", "0"),
+        ("Expected units of the pass-fail rule, E[N] (PLAN_EXPECTED_UNITS, exact)", "PLAN_EXPECTED_UNITS", "0.0"),
+    )
+    for offset, (label, _, _) in enumerate(table, start=4):
+        sheet.cell(row + offset, 1, label).font = Font(bold=True, color="34495E")
+    for index, model in enumerate(MODEL_NAMES_SHOWN):
+        letter = get_column_letter(3 + index)
+        shape, scale = models[model]
+        for offset, value, number_format, source in ((2, shape, "0.000", inputs["shape"]),
+                                                      (3, scale, "0", inputs["scale"])):
+            coordinate = f"{letter}{row + offset}"
+            if model == "gamma":  # the gamma column is the team's guess itself
+                set_formula(sheet, coordinate, f"={source}", value, cached)
+            else:
+                sheet[coordinate] = float("%.6g" % value)
+                sheet[coordinate].fill = INPUT_FILL
+            sheet[coordinate].number_format = number_format
+        shape_value = shape if model == "gamma" else sheet[f"{letter}{row + 2}"].value
+        scale_value = scale if model == "gamma" else sheet[f"{letter}{row + 3}"].value
+        shape_cell, scale_cell = f"{letter}${row + 2}", f"{letter}${row + 3}"
+        guess = f"{inputs['threshold']},{shape_cell},{scale_cell}"
+        model_cell = f"{letter}${row + 1}"
+        rule = f"{guess},{inputs['accuracy']},{inputs['confidence']}"
+        formulas = {
+            "TAIL_PROB": (f"=TAIL_PROB({guess},{model_cell})",
+                          _formula("TAIL_PROB")(values["threshold"], shape_value, scale_value, model)),
+            "UNITS_REQUIRED": (f'=UNITS_REQUIRED({rule},"fitted-shape",{model_cell})',
+                               _formula("UNITS_REQUIRED")(values["threshold"], shape_value, scale_value,
+                                                          values["accuracy"], values["confidence"], "fitted-shape",
+                                                          model)),
+            "PLAN_EXPECTED_UNITS": (f'=PLAN_EXPECTED_UNITS({rule},{inputs["pilot"]},"pass-fail",,,{model_cell})',
+                                    _formula("PLAN_EXPECTED_UNITS")(values["threshold"], shape_value, scale_value,
+                                                                    values["accuracy"], values["confidence"],
+                                                                    values["pilot"], "pass-fail", None, None, model)),
+        }
+        for offset, (label, name, number_format) in enumerate(table, start=4):
+            formula, value = formulas[name]
+            figures[("models", name, model)] = value
+            set_formula(sheet, f"{letter}{row + offset}", formula, value, cached)
+            sheet[f"{letter}{row + offset}"].number_format = number_format
+    note = sheet.cell(row + len(table) + 5, 1, "The three fit a short log about equally well, yet differ in the tail "
+                                               "beyond the threshold: the choice of model matters (FIT_COMPARE on "
+                                               "the log; docs/method.md).")
+    note.font = SOFT_FONT
 
 
 def _plan_value(name, values, method):

@@ -107,15 +107,19 @@ class RulePlan:
     method: str = "pass-fail"
     shape: float | None = None
     check_every: int = 1
+    model: str = "gamma"
 
     @classmethod
-    def checked(cls, threshold, accuracy, confidence, pilot, method=None, shape=None, check_every=None):
+    def checked(cls, threshold, accuracy, confidence, pilot, method=None, shape=None, check_every=None, model=None):
         """A plan from user input; ``cells.InputError`` saying what to fix."""
+        from ..sheet.estimate import clean_model
+
         name = cells.method_name(method, METHOD_NAMES)
+        model_name = clean_model(model)
         shape_value = None
         if name == "known-shape":
             if cells.is_missing(shape):
-                raise cells.InputError("known-shape needs the gamma shape (--shape)")
+                raise cells.InputError(f"known-shape needs the {model_name} shape (--shape)")
             shape_value = cells.positive(shape, "shape")
         elif not cells.is_missing(shape):
             raise cells.InputError(f"a shape is used by known-shape only, not by {name}")
@@ -128,12 +132,14 @@ class RulePlan:
             method=name,
             shape=shape_value,
             check_every=every,
+            model=model_name,
         )
 
     def describe(self) -> str:
         shape = f", shape {self.shape:g}" if self.shape is not None else ""
+        model = f" ({self.model})" if self.model != "gamma" and self.method != "pass-fail" else ""
         every = f", checked every {self.check_every} units" if self.check_every > 1 else ""
-        return (f"{self.method}{shape}: odds within a factor {self.accuracy:g} at {self.confidence * 100:g} % "
+        return (f"{self.method}{model}{shape}: odds within a factor {self.accuracy:g} at {self.confidence * 100:g} % "
                 f"confidence, pilot {self.pilot}{every}")
 
 
@@ -413,7 +419,7 @@ def _analyse(log, values, plan):
     column = _as_range(values)
     _refuse_bad_cells(log, column, plan)
     arguments = (plan.threshold, plan.accuracy, plan.confidence, plan.pilot, plan.method, plan.shape,
-                 plan.check_every)
+                 plan.check_every, plan.model)
     result = _decision_column(column, arguments)
     _refuse_text(result, log)
     decisions = [row[0] for row in result]
@@ -431,10 +437,11 @@ def _analyse(log, values, plan):
     survivors = reading.survivors[: units_used] if reading.survivors[: units_used].any() else None
     try:
         notes = note_lines(method_notes(reading.values[:units_used], plan.threshold, plan.method, plan.shape,
-                                        accuracy=plan.accuracy, confidence=plan.confidence, survivors=survivors))
+                                        accuracy=plan.accuracy, confidence=plan.confidence, survivors=survivors,
+                                        model=plan.model))
     except ValueError as problem:  # the estimate itself shows the same problem as #TAILSTOP! text
         notes = [str(problem)]
-    live = _formula("TAIL_METHOD_NOTES")(used, plan.threshold, plan.method, plan.shape)
+    live = _formula("TAIL_METHOD_NOTES")(used, plan.threshold, plan.method, plan.shape, plan.model)
     live_notes = [_index(live, line, 1) for line in range(1, LIVE_NOTE_LINES + 1)]
     filled = sum(1 for value in values[:rows_used] if value is not None and value != "")
     return LogAnalysis(plan, decisions, stop_offset, rows_used, int(reading.values.size), units_used, filled,
@@ -456,11 +463,12 @@ def _refuse_text(result, log):
 
 
 def _figures(used, column, plan):
-    estimate = _formula("TAIL_PROB_EST")(used, plan.threshold, plan.method, plan.shape)
-    bounds = _formula("TAIL_PROB_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape)
-    odds_bounds = _formula("TAIL_ODDS_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape)
+    estimate = _formula("TAIL_PROB_EST")(used, plan.threshold, plan.method, plan.shape, plan.model)
+    bounds = _formula("TAIL_PROB_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape, plan.model)
+    odds_bounds = _formula("TAIL_ODDS_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape,
+                                               plan.model)
     needed = _formula("UNITS_NEEDED_NOW")(column, plan.threshold, plan.accuracy, plan.confidence, plan.method,
-                                          plan.shape)
+                                          plan.shape, plan.model)
     return {
         "estimate": estimate,
         "p_low": _index(bounds, 1, 1),
@@ -479,11 +487,12 @@ _INPUTS = (
     # key, label, plan attribute
     ("threshold", "Threshold{unit}", "threshold"),
     ("method", "Method", "method"),
-    ("shape", "Gamma shape (known-shape only)", "shape"),
+    ("shape", "Shape of the model (known-shape only)", "shape"),
     ("accuracy", "Accuracy d: odds within a factor d", "accuracy"),
     ("confidence", "Confidence", "confidence"),
     ("pilot", "Pilot (units)", "pilot"),
     ("check_every", "Rule checked every (units)", "check_every"),
+    ("model", "Lifetime model (gamma, weibull, lognormal)", "model"),
 )
 _OUTPUTS = (
     # key, label, number format
@@ -563,8 +572,8 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
                 f"${get_column_letter(decision_column)}${log.last_row}"
     whole = log.reference()
     used = f"INDEX({whole},1):INDEX({whole},{a('rows_used')})"
-    method_args = f"{a('method')},{a('shape')}"
-    rule = f"{a('threshold')},{a('accuracy')},{a('confidence')},{a('pilot')},{method_args},{a('check_every')}"
+    method_args = f"{a('method')},{a('shape')},{a('model')}"
+    rule = decision_rule(layout)
     return {
         "last_decision": f"=STOP_DECISION({whole},{rule})",
         "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),ROWS({whole}))',
@@ -714,7 +723,7 @@ def decision_rule(layout: BlockLayout) -> str:
     """The rule's arguments of a live decision cell: the settings cells of the block."""
     a = layout.absolute
     return (f"{a('threshold')},{a('accuracy')},{a('confidence')},{a('pilot')},{a('method')},{a('shape')},"
-            f"{a('check_every')}")
+            f"{a('check_every')},{a('model')}")
 
 
 def decision_formula(log: LogRange, row: int, rule: str) -> str:

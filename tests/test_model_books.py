@@ -1,0 +1,69 @@
+"""The lifetime model in the annotated log and in the demo planning book."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import openpyxl
+import pytest
+from scipy import stats
+
+from tailstop.commands import main
+from tailstop.workbooks import demo_books
+from tailstop.workbooks.annotate import annotate
+from tailstop.workbooks.log_layout import RulePlan
+from test_annotate import LOG_SHEET, rich_log
+
+
+def block_of(path):
+    sheet = openpyxl.load_workbook(path)[LOG_SHEET]
+    return {sheet.cell(row, 12).value: sheet.cell(row, 13).value for row in range(1, 45)}
+
+
+def test_annotate_reports_the_model_and_a_better_fitting_one(tmp_path):
+    # check value: the fitted-shape Weibull estimate from scipy.stats.weibull_min.fit (floc=0) at the STOP
+    rng = np.random.default_rng(21)
+    lifetimes = np.round(900.0 * np.exp(0.9 * rng.standard_normal(150)), 1)  # lognormal lifetimes
+    path = rich_log(tmp_path / "bench.xlsx", lifetimes)
+    plan = RulePlan.checked(1500.0, 1.2, 0.95, 10, "fitted-shape", None, None, "Weibull")
+    result = annotate(path, column="D", plan=plan)
+    block = block_of(result.path)
+    assert block["Lifetime model (gamma, weibull, lognormal)"] == "weibull"
+    used = int(block["Units used, N"])
+    shape, _, scale = stats.weibull_min.fit(lifetimes[:used], floc=0)
+    assert block["Estimate of p = P(life > threshold)"] == pytest.approx(
+        stats.weibull_min.sf(1500.0, shape, scale=scale), rel=1e-4)
+    sheet = openpyxl.load_workbook(result.path)[LOG_SHEET]
+    warnings = " ".join(str(sheet.cell(row, 13).value) for row in range(1, 45) if sheet.cell(row, 13).value)
+    # common practice, no published source: 150 strongly skewed lognormal lifetimes are told apart by AIC
+    assert "lognormal model fits this log clearly better than the Weibull model" in warnings
+
+
+def test_annotate_command_takes_the_model(tmp_path, capsys):
+    # common practice, no published source: a bad model is refused with the allowed names
+    path = rich_log(tmp_path / "bench.xlsx")
+    args = ["annotate", str(path), "--column", "D", "--threshold", "1500", "--accuracy", "2", "--pilot", "10",
+            "--method", "fitted-shape"]
+    assert main(args + ["--model", "beta"]) == 1
+    assert "model must be one of gamma, weibull, lognormal" in capsys.readouterr().err
+    assert main(args + ["--model", "lognormal", "--out", str(tmp_path / "out.xlsx")]) == 0
+    assert block_of(tmp_path / "out.xlsx")["Lifetime model (gamma, weibull, lognormal)"] == "lognormal"
+
+
+def test_plan_command_takes_the_model(capsys):
+    # check value: p = exp(-(c/η)^β) by hand for the Weibull guess
+    assert main(["plan", "--threshold", "40", "--shape", "1.5", "--scale", "100", "--accuracy", "2",
+                 "--model", "weibull", "--replications", "200", "--fitted-replications", "100"]) == 0
+    out = capsys.readouterr().out
+    assert f"p = {math.exp(-0.4 ** 1.5):.6g}" in out and "weibull lifetimes" in out
+
+
+def test_demo_models_match_the_guess_mean_and_spread():
+    # check value: scipy.stats mean and std of gamma(2, 600), weibull_min and lognorm at the matched parameters
+    models = demo_books.matched_models(2.0, 600.0)
+    reference = stats.gamma(2.0, scale=600.0)
+    for name, distribution in (("weibull", stats.weibull_min), ("lognormal", stats.lognorm)):
+        shape, scale = models[name]
+        matched = distribution(shape, scale=scale)
+        assert matched.mean() == pytest.approx(reference.mean(), rel=1e-10)
+        assert matched.std() == pytest.approx(reference.std(), rel=1e-10)
