@@ -122,3 +122,15 @@ def test_recalc_loses_nothing_and_stores_the_values(original, tmp_path):
     # check value: the pass-fail estimate is the share of units beyond the threshold, counted here
     assert shown[LOG_SHEET]["G9"].value == pytest.approx(
         sum(v > TAIL_THRESHOLD for v in lifetimes) / len(lifetimes), rel=1e-15)
+
+
+@pytest.mark.parametrize("streaming", [False, True], ids=["openpyxl", "stream"])
+def test_annotating_again_in_place_loses_nothing_of_the_original(original, tmp_path, streaming):
+    # the weekly routine: the log is annotated in place, grows, and is annotated in place again
+    reference = tmp_path / "reference.xlsx"
+    reference.write_bytes(original.read_bytes())
+    annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, backup=False, streaming=streaming)
+    first = original.read_bytes()
+    result = annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, streaming=streaming)
+    assert result.backup.read_bytes() == first
+    assert_nothing_lost(reference, original, added_columns_from={LOG_SHEET: FIRST_FREE_COLUMN})
