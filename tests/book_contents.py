@@ -8,11 +8,11 @@ panes, data validations, conditional formats, comments, hyperlinks, print
 settings and sheet-scoped defined names; per book the sheet order, the
 workbook's defined names and the print areas and titles.
 
-``assert_nothing_lost(original, written, added_columns_from=...)`` compares
-the original's contents with a written book's: every item of the original
-must be in the written book unchanged. A tool that adds a column and a block
-to the right of a log may add cells, widths and a conditional format there;
-nothing else may differ.
+``assert_nothing_lost(original, written, added_columns=...)`` compares the
+original's contents with a written book's: every item of the original must
+be in the written book unchanged. A tool that adds a decision column and a
+block may add cells and widths in those columns (where the original had no
+cell) and a conditional format; nothing else may differ.
 """
 from __future__ import annotations
 
@@ -183,13 +183,14 @@ def _column_of(coordinate):
     return column_index_from_string(coordinate_from_string(coordinate)[0])
 
 
-def differences(before, after, *, added_columns_from=None):
+def differences(before, after, *, added_columns=None):
     """What the written book lost or changed, as readable lines (empty: nothing lost).
 
-    ``added_columns_from`` maps a sheet title to the first column a tool may
-    add to (cells, widths): those additions are not losses.
+    ``added_columns`` maps a sheet title to the column numbers a tool may add
+    to (new cells where the original had none, widths): those additions are
+    not losses. A cell of the original is never allowed to change.
     """
-    added_columns_from = added_columns_from or {}
+    added_columns = added_columns or {}
     found = []
     if after["sheets"] != before["sheets"]:
         found.append(f"sheets {before['sheets']} became {after['sheets']}")
@@ -203,18 +204,18 @@ def differences(before, after, *, added_columns_from=None):
         now = after["sheet"].get(title)
         if now is None:
             continue
-        first_added = added_columns_from.get(title)
+        allowed = added_columns.get(title, set())
         for coordinate, cell in was["cells"].items():
             if now["cells"].get(coordinate) != cell:
                 found.append(f"{title}!{coordinate}: {cell!r} became {now['cells'].get(coordinate)!r}")
         for coordinate in set(now["cells"]) - set(was["cells"]):
-            if first_added is None or _column_of(coordinate) < first_added:
+            if _column_of(coordinate) not in allowed:
                 found.append(f"{title}!{coordinate}: a cell appeared: {now['cells'][coordinate]!r}")
         for column, width in was["widths"].items():
             if now["widths"].get(column) != width:
                 found.append(f"{title} column {column} width {width} became {now['widths'].get(column)}")
         for column in set(now["widths"]) - set(was["widths"]):
-            if first_added is None or column < first_added:
+            if column not in allowed:
                 found.append(f"{title} column {column} got a width {now['widths'][column]}")
         for what in ("merged", "heights", "freeze panes", "validations", "comments", "hyperlinks", "print",
                      "tab color", "auto filter"):
@@ -229,7 +230,7 @@ def differences(before, after, *, added_columns_from=None):
     return found
 
 
-def assert_nothing_lost(original, written, *, added_columns_from=None):
+def assert_nothing_lost(original, written, *, added_columns=None):
     """Fail, listing every loss, unless ``written`` keeps everything ``original`` holds (see module doc)."""
-    found = differences(contents(original), contents(written), added_columns_from=added_columns_from)
+    found = differences(contents(original), contents(written), added_columns=added_columns)
     assert not found, "the written book lost or changed:\n  " + "\n  ".join(found[:40])

@@ -5,15 +5,17 @@ values, formulas, number formats, fonts, fills, borders, alignment, merged
 ranges, column widths, row heights, freeze panes, data validations,
 conditional formats, comments, hyperlinks, defined names and print settings,
 on the log sheet and on every other sheet. The written book is read the same
-way and must hold all of it unchanged; the only additions allowed are the
-cells, widths and conditional format a tool puts in the free columns right of
-the log. tailstop's own checks (``cell_check``, the stream's read-back) are
-not used here, so a loss they would not see is still found.
+way and must hold all of it unchanged; the only additions allowed are new
+cells and widths in the decision column and the estimate block's columns
+(where the original had no cell) and the tool's conditional format.
+tailstop's own checks (``cell_check``, the stream's read-back) are not used
+here, so a loss they would not see is still found.
 """
 from __future__ import annotations
 
 import openpyxl
 import pytest
+from openpyxl.utils.cell import range_boundaries
 
 from book_contents import assert_nothing_lost, contents, differences
 from styled_books import LOG_COLUMN, LOG_HEADER, LOG_SHEET, OTHER_SHEET, SEVENTEEN_DIGITS, TAIL_THRESHOLD, styled_log
@@ -21,8 +23,14 @@ from tailstop.workbooks.annotate import annotate
 from tailstop.workbooks.log_layout import RulePlan
 from tailstop.workbooks.recalc import recalc
 
-# the log sheet's last used column is E (remark) ... H (merged title G3:H4): tools add from column I on
-FIRST_FREE_COLUMN = 9
+
+def tool_columns(*results):
+    """{log sheet: the columns annotate wrote to}: its decision column and the block's two columns."""
+    columns = set()
+    for result in results:
+        low, _, high, _ = range_boundaries(result.block)
+        columns |= {result.decision_column, *range(low, high + 1)}
+    return {LOG_SHEET: columns}
 
 
 def plan(method="pass-fail", shape=None):
@@ -60,7 +68,7 @@ def test_the_comparison_sees_each_kind_of_loss(original, tmp_path):
         change(book)
         path = tmp_path / f"damaged-{len(list(tmp_path.iterdir()))}.xlsx"
         book.save(path)
-        return differences(contents(original), contents(path), added_columns_from={LOG_SHEET: FIRST_FREE_COLUMN})
+        return differences(contents(original), contents(path), added_columns={LOG_SHEET: {9, 10, 11}})
 
     log = lambda book: book[LOG_SHEET]  # noqa: E731
     other = lambda book: book[OTHER_SHEET]  # noqa: E731
@@ -78,7 +86,7 @@ def test_the_comparison_sees_each_kind_of_loss(original, tmp_path):
         "print": lambda b: setattr(other(b).page_setup, "orientation", "portrait"),
         "value": lambda b: setattr(log(b)["C7"], "value", 1.0),
         "formula": lambda b: setattr(other(b)["D4"], "value", 0.25),
-        "a cell left of the new columns": lambda b: setattr(log(b)["F2"], "value", "x"),
+        "a cell outside the tool's columns": lambda b: setattr(log(b)["F2"], "value", "x"),
     }
     for kind, change in changes.items():
         assert damaged(change), kind
@@ -89,8 +97,7 @@ def test_the_comparison_sees_each_kind_of_loss(original, tmp_path):
 def test_annotate_loses_nothing_on_any_sheet(original, tmp_path, streaming, live):
     result = annotate(original, column=LOG_HEADER, plan=plan(), out=tmp_path / "annotated.xlsx", live=live,
                       streaming=streaming)
-    assert result.decision_column >= FIRST_FREE_COLUMN
-    assert_nothing_lost(original, result.path, added_columns_from={LOG_SHEET: FIRST_FREE_COLUMN})
+    assert_nothing_lost(original, result.path, added_columns=tool_columns(result))
 
 
 @pytest.mark.parametrize("streaming", [False, True], ids=["openpyxl", "stream"])
@@ -98,7 +105,7 @@ def test_annotate_loses_nothing_when_the_log_is_not_the_first_sheet(tmp_path, st
     original = styled_log(tmp_path / "log.xlsx", other_sheet_first=True)
     result = annotate(original, column=LOG_COLUMN, sheet=LOG_SHEET, plan=plan("known-shape", 2.0),
                       out=tmp_path / "annotated.xlsx", streaming=streaming)
-    assert_nothing_lost(original, result.path, added_columns_from={LOG_SHEET: FIRST_FREE_COLUMN})
+    assert_nothing_lost(original, result.path, added_columns=tool_columns(result))
 
 
 def test_annotate_in_place_keeps_the_original_as_backup_and_loses_nothing(original, tmp_path):
@@ -106,7 +113,7 @@ def test_annotate_in_place_keeps_the_original_as_backup_and_loses_nothing(origin
     reference.write_bytes(original.read_bytes())
     result = annotate(original, column=LOG_HEADER, plan=plan(), in_place=True)
     assert result.backup.read_bytes() == reference.read_bytes()
-    assert_nothing_lost(reference, original, added_columns_from={LOG_SHEET: FIRST_FREE_COLUMN})
+    assert_nothing_lost(reference, original, added_columns=tool_columns(result))
 
 
 def test_recalc_loses_nothing_and_stores_the_values(original, tmp_path):
@@ -129,8 +136,8 @@ def test_annotating_again_in_place_loses_nothing_of_the_original(original, tmp_p
     # the weekly routine: the log is annotated in place, grows, and is annotated in place again
     reference = tmp_path / "reference.xlsx"
     reference.write_bytes(original.read_bytes())
-    annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, backup=False, streaming=streaming)
+    earlier = annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, backup=False, streaming=streaming)
     first = original.read_bytes()
     result = annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, streaming=streaming)
     assert result.backup.read_bytes() == first
-    assert_nothing_lost(reference, original, added_columns_from={LOG_SHEET: FIRST_FREE_COLUMN})
+    assert_nothing_lost(reference, original, added_columns=tool_columns(earlier, result))
