@@ -85,3 +85,13 @@ def test_a_file_that_is_not_a_program_is_missing(clean_environment, monkeypatch)
 def test_the_real_libreoffice_when_this_machine_has_one(soffice):
     # the session's probe found a working program; the fixture is what every LibreOffice test uses
     assert os.access(soffice, os.X_OK)
+
+
+def test_the_ci_script_runs_the_tests_as_ci():
+    # .ci/run must set CI=true before the test command, or a CI machine without LibreOffice would pass
+    from pathlib import Path
+
+    script = (Path(__file__).resolve().parent.parent / ".ci" / "run").read_text().splitlines()
+    exported = next(i for i, line in enumerate(script) if line.strip() == 'export CI="${CI:-true}"')
+    tests = next(i for i, line in enumerate(script) if "python -m pytest" in line and not line.startswith("#"))
+    assert exported < tests
