@@ -218,3 +218,18 @@ def test_sparse_sheet_over_the_engine_area_is_refused(tmp_path):
     with pytest.raises(WorkbookRefused, match="16,384,000 cells"):
         recalc(tmp_path / "sparse.xlsx", tmp_path / "sparse-values.xlsx")
     assert not (tmp_path / "sparse-values.xlsx").exists()
+
+
+def test_an_array_formula_nothing_else_reads_gets_its_values(tmp_path):
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Log"
+    for row, value in enumerate([120.0, 340.0, 900.0, 800.0], start=1):
+        sheet.cell(row, 1, value)
+    sheet["D1"] = ArrayFormula("D1:E1", '=TAIL_PROB_BOUNDS(A1:A4,300,2,"pass-fail")')
+    book.save(tmp_path / "lone.xlsx")
+    result = recalc(tmp_path / "lone.xlsx", tmp_path / "lone-values.xlsx")
+    # check value: METHOD.md §2 with 3 of 4 units beyond 300, q = 3, d = 2:
+    # p_low = q / (d + q) = 3/5, p_high = d q / (1 + d q) = 6/7
+    assert result.values[("Log", "D1")] == pytest.approx(3 / 5, rel=1e-12)
+    assert result.values[("Log", "E1")] == pytest.approx(6 / 7, rel=1e-12)

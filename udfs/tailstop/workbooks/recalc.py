@@ -24,7 +24,7 @@ import numpy as np
 import schedula
 from formulas.functions import Array, parse_ranges
 from formulas.tokens.operand import Error, XlError
-from openpyxl.utils.cell import range_boundaries
+from openpyxl.utils.cell import get_column_letter, range_boundaries
 from openpyxl.worksheet.formula import ArrayFormula
 
 from . import filled_down
@@ -42,6 +42,8 @@ UDF_PREFIXES = ("", "_XLUDF.", "TAILSTOP.")
 MAX_ENGINE_AREA = 2_000_000
 _EXTERNAL_LINK = "application/vnd.openxmlformats-officedocument.spreadsheetml.externalLink+xml"
 _ENGINE_KEY = re.compile(r"^'?\[[^\]]*\](?P<sheet>.*?)'?!(?P<cell>[A-Z]+[0-9]+)$")
+# an array formula that no other formula reads is solved only as its block, 'SHEET'!D1:E1
+_ENGINE_BLOCK = re.compile(r"^'?\[[^\]]*\](?P<sheet>.*?)'?!(?P<block>[A-Z]+[0-9]+:[A-Z]+[0-9]+)$")
 
 
 @dataclass(frozen=True)
@@ -167,15 +169,35 @@ def evaluate_workbook(book_path):
         if results is None:
             results = formulas.ExcelModel().loads(path).finish().calculate(), {}
     solution, filled = results
-    computed = {}
+    computed, blocks = {}, []
     for key, ranges in solution.items():
         match = _ENGINE_KEY.match(str(key))
         if match and hasattr(ranges, "value"):
             computed[(match["sheet"].upper(), match["cell"])] = _from_engine(ranges.value)
+        elif hasattr(ranges, "value") and (block := _ENGINE_BLOCK.match(str(key))):
+            blocks.append((block["sheet"].upper(), block["block"], ranges.value))
+    _spread_lone_blocks(blocks, computed)
     for key, value in filled.items():
         match = _ENGINE_KEY.match(key)
         computed[(match["sheet"].upper(), match["cell"])] = _from_engine(value)
     return computed
+
+
+def _spread_lone_blocks(blocks, computed):
+    """Give the cells of a block whose top-left cell the engine did not solve on its own their values.
+
+    A range some formula reads has its cells solved one by one already; only an
+    array formula that nothing reads is solved as a block alone.
+    """
+    for sheet, block, values in blocks:
+        first_column, first_row, last_column, last_row = range_boundaries(block)
+        if (sheet, f"{get_column_letter(first_column)}{first_row}") in computed:
+            continue
+        grid = np.atleast_2d(np.asarray(values, dtype=object))
+        for row in range(min(last_row - first_row + 1, grid.shape[0])):
+            for column in range(min(last_column - first_column + 1, grid.shape[1])):
+                coordinate = f"{get_column_letter(first_column + column)}{first_row + row}"
+                computed.setdefault((sheet, coordinate), _from_engine(grid[row, column]))
 
 
 def _calculate_with_filled_down_columns(path):
