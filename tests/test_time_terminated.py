@@ -5,9 +5,11 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from tailstop.core.methods import model_sigma2
+from tailstop.core.methods import estimate_tail, model_sigma2
+from tailstop.core.operating.time_terminated import simulate_with_test_time
+from tailstop.core.rule import boundary_factor
 from tailstop.core.time_terminated import time_terminated_sigma2
-from tailstop.sheet import ACCURACY_FOR_UNITS, UNITS_REQUIRED
+from tailstop.sheet import ACCURACY_FOR_UNITS, PLAN_COVERAGE, PLAN_EXPECTED_UNITS, PLAN_SUMMARY, UNITS_REQUIRED
 
 LAWS = {"gamma": stats.gamma, "weibull": stats.weibull_min, "lognormal": stats.lognorm}
 
@@ -94,3 +96,56 @@ def test_accuracy_for_units_is_the_inverse_of_units_required_with_a_test_time():
     z = 1.959963984540054  # NIST/SEMATECH §1.3.6.7.1
     assert ACCURACY_FOR_UNITS(100, 1000, 2, 600, 0.95, "fitted-shape", None, 1200) == pytest.approx(
         math.exp(z * math.sqrt(sigma2 / 100)), rel=1e-12)
+
+
+# --------------------------------------------------------------------------- what the rule does on a stopped test
+
+def test_simulation_against_the_rule_written_out_run_by_run():
+    # check value: each run redone here with the same random numbers: lifetimes gamma(2, 600) stopped at
+    # T = 1200, the known-shape rule applied prefix by prefix through estimate_tail (METHOD.md §5)
+    result = simulate_with_test_time(1000.0, 2.0, 600.0, 1.5, 0.95, 10, "known-shape", 1200.0, replications=15,
+                                     seed=7)
+    rng = np.random.default_rng(7)
+    factor = boundary_factor(1.5, 0.95)
+    p = stats.gamma.sf(1000.0, 2.0, scale=600.0)
+    for run in range(15):
+        lifetimes = rng.gamma(2.0, 600.0, result.n_max)
+        suspended = lifetimes > 1200.0
+        times = np.where(suspended, 1200.0, lifetimes)
+        stop = None
+        for n in range(10, result.n_max + 1):
+            estimate = estimate_tail(times[:n], 1000.0, "known-shape", 2.0, survivors=suspended[:n])
+            if n >= factor * estimate.sigma2:
+                stop = n
+                break
+        assert result.units[run] == stop
+        covered = abs(estimate.log_odds - math.log(p / (1 - p))) <= math.log(1.5)
+        assert result.covered[run] == covered
+
+
+def test_plan_formulas_take_the_test_time():
+    summary = dict(map(tuple, PLAN_SUMMARY(1000, 2, 600, 1.5, 0.95, 10, "fitted-shape", 100, 3, None, 1200)))
+    assert summary["test time (each unit stopped)"] == 1200
+    # n* from the expected information under the censoring (tested against quadrature above)
+    n_star = math.ceil(boundary_factor(1.5, 0.95) * time_terminated_sigma2("fitted-shape", 1000, 2, 600, 1200))
+    assert summary["fixed-size units n*"] == n_star
+    assert PLAN_EXPECTED_UNITS(1000, 2, 600, 1.5, 0.95, 10, "fitted-shape", 100, 3, None, 1200) == \
+        summary["expected units E[N]"]
+    # pass-fail: exact figures, unchanged by a test time at or past the threshold, refused below it
+    assert PLAN_COVERAGE(1000, 2, 600, 1.5, 0.95, 10, None, None, None, None, 1000) == \
+        PLAN_COVERAGE(1000, 2, 600, 1.5, 0.95, 10)
+    assert PLAN_COVERAGE(1000, 2, 600, 1.5, 0.95, 10, None, None, None, None, 900).startswith(
+        "#TAILSTOP! pass-fail cannot see past the test time")
+    refused = PLAN_COVERAGE(1000, 2, 600, 1.1, 0.95, 10, "known-shape", None, None, None, 1200)
+    assert refused.startswith("#TAILSTOP!") and "with a test time" in refused and "tailstop plan" in refused
+
+
+def test_plan_command_takes_a_test_time(capsys):
+    from tailstop.commands import main
+
+    code = main(["plan", "--threshold", "1000", "--shape", "2", "--scale", "600", "--accuracy", "1.5",
+                 "--test-time", "700", "--replications", "50", "--fitted-replications", "30"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "Every unit still running at 700 is stopped there" in out and "pass-fail is left out" in out
+    assert "known-shape" in out and "fitted-shape" in out

@@ -58,7 +58,7 @@ DOCUMENTED = {
     "UNITS_NEEDED_NOW": ["observations", "threshold", "accuracy", "confidence", "[method]", "[shape]", "[model]"],
     "TWO_STAGE_UNITS": ["pilot_observations", "threshold", "accuracy", "confidence", "[method]", "[shape]", "[model]"],
     **{name: ["threshold", "shape", "scale", "accuracy", "confidence", "pilot", "[method]", "[replications]", "[seed]",
-              "[model]"]
+              "[model]", "[test_time]"]
        for name in ("PLAN_EXPECTED_UNITS", "PLAN_COVERAGE", "PLAN_SUMMARY")},
     "PLAN_SUMMARY_FROM_P": ["p_guess", "accuracy", "confidence", "pilot"],
 }

@@ -71,6 +71,9 @@ def add_arguments(parser):
                         help="simulated runs for fitted-shape (default 10,000)")
     parser.add_argument("--seed", type=int, help="seed of the simulation (default: the fixed seed of every "
                                                  "tailstop simulation, so that runs repeat)")
+    parser.add_argument("--test-time", type=float, metavar="T",
+                        help="every unit still running at T is stopped there (a time-terminated test); "
+                             "pass-fail needs T at or beyond the threshold")
     parser.add_argument("--calibrate", action="store_true",
                         help="also find the smallest critical value that reaches the nominal coverage")
     parser.add_argument("--png", metavar="FILE", help="write a plot of the distribution of N and of coverage "
@@ -92,16 +95,26 @@ def run(args, out=None, progress_stream=None):
         print(f"tailstop plan: {too_large}", file=sys.stderr)
         return 1
     counts = {"known-shape": args.replications, "fitted-shape": args.fitted_replications}
+    test_time = getattr(args, "test_time", None)
+    if test_time is not None and (args.calibrate or args.png):
+        raise ValueError("--test-time cannot be combined with --calibrate or --png yet")
     bar = ProgressBar("simulating", progress_stream)
     try:
-        comparison = operating.compare_methods(*plan, replications=args.replications, seed=args.seed,
-                                               fitted_replications=args.fitted_replications, progress=bar,
-                                               model=args.model)
+        if test_time is None:
+            comparison = operating.compare_methods(*plan, replications=args.replications, seed=args.seed,
+                                                   fitted_replications=args.fitted_replications, progress=bar,
+                                                   model=args.model)
+        else:
+            comparison = _with_test_time(plan, test_time, counts, args.seed, bar, args.model)
     finally:
         bar.close()
-    first = comparison.results["pass-fail"]
+    first = next(iter(comparison.results.values()))
     print(f"Plan: threshold {args.threshold:g}, {args.model} shape {args.shape:g}, scale {args.scale:g}; "
           f"odds within x{args.accuracy:g} at {args.confidence:g} confidence; pilot {args.pilot}", file=out)
+    if test_time is not None:
+        print(f"Every unit still running at {test_time:g} is stopped there (a time-terminated test)"
+              + ("" if "pass-fail" in comparison.results else
+                 "; pass-fail is left out: it cannot see past a test time below the threshold"), file=out)
     print(f"True probability beyond the threshold under the guess: p = {first.probability:.6g}", file=out)
     print(file=out)
     print(_aligned(comparison.table()), file=out)
@@ -133,6 +146,23 @@ def _too_large(plan):
                 f"{PLAN_UNITS_LIMIT:,} units: ask for a larger accuracy factor or choose a threshold nearer the "
                 "typical life")
     return None
+
+
+def _with_test_time(plan, test_time, counts, seed, progress, model="gamma"):
+    """The methods side by side when every unit is stopped at ``test_time``."""
+    from ..core import operating
+    from ..core.operating.time_terminated import simulate_with_test_time
+
+    threshold = plan[0]
+    results = {}
+    if test_time >= threshold:
+        results["pass-fail"] = operating.operating_characteristics(*plan, "pass-fail", model=model)
+    for share, method in ((0.3, "known-shape"), (0.7, "fitted-shape")):
+        base = 0.0 if method == "known-shape" else 0.3
+        results[method] = simulate_with_test_time(
+            *plan, method, test_time, replications=counts[method], seed=seed, model=model,
+            progress=lambda fraction, base=base, share=share: progress(base + share * fraction))
+    return operating.MethodComparison(results)
 
 
 def _aligned(rows):

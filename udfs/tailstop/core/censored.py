@@ -36,7 +36,7 @@ from .models import censored_log_location as _log_location
 from .models.gamma import censored as _gamma_censored
 from .models.gamma.fit import shape_from_log_ratio
 from .probability import TailProbability
-from .product_limit import product_limit, regularized_sigma2
+from .product_limit import prefix_counts, product_limit, regularized_sigma2
 
 __all__ = ["FAILURES_NEEDED", "CensoredEstimate", "censored_units", "is_censored", "failures_message",
            "censored_estimate", "CensoredRule", "censoring_notes"]
@@ -176,6 +176,19 @@ def _padded(times, counts):
             (np.arange(width) < counts[:, None]).astype(float))
 
 
+def _grouped(x, flags, n):
+    """The distinct suspension times and, per prefix, how many units were suspended at each.
+
+    A time-terminated test suspends every survivor at the same time: one
+    column then serves all of them.
+    """
+    values, column = np.unique(x[flags], return_inverse=True)
+    per_unit = np.full(x.size, -1, dtype=np.int64)
+    per_unit[flags] = column
+    counts = prefix_counts(per_unit, values.size, n).astype(float)
+    return np.broadcast_to(values, counts.shape), counts
+
+
 def _prefix_data(x, flags, n, model="gamma"):
     failed = ~flags
     failure_times = x[failed]
@@ -189,7 +202,7 @@ def _prefix_data(x, flags, n, model="gamma"):
     log_total = r * np.log(reference) + logs
     with np.errstate(divide="ignore", invalid="ignore"):
         log_ratio = np.where(r > 0, np.maximum(np.log(scaled / count) - logs / count, 0.0), np.nan)
-    suspension_times, weights = _padded(x[flags], np.cumsum(flags)[n - 1])
+    suspension_times, weights = _grouped(x, flags, n)
     failure_matrix = _padded(failure_times, r) if model in _log_location.FAMILIES else None
     return _PrefixData(n, (r.astype(float), total, log_total), log_ratio, suspension_times, weights, failure_matrix)
 
@@ -259,6 +272,9 @@ class CensoredRule:
     continues while there are too few failures).
     """
 
+    # each censored check point costs a fit over its prefix: start with few of them
+    first_chunk = 32
+
     def __init__(self, plain, method, model="gamma"):
         self.plain = plain
         self.method = method
@@ -277,7 +293,8 @@ class CensoredRule:
         if self.method == "pass-fail":
             return regularized_sigma2(product_limit(x, flags, threshold, prefixes=n))
         out = np.empty(n.size)
-        width = max(1, int(n.max()) if self.model in _log_location.FAMILIES else int(flags[: n.max()].sum()))
+        suspended = np.unique(x[: n.max()][flags[: n.max()]]).size
+        width = max(1, int(n.max()) + suspended if self.model in _log_location.FAMILIES else suspended)
         rows = max(1, _RULE_CELLS // width)
         for start in range(0, n.size, rows):
             part = n[start:start + rows]

@@ -38,7 +38,7 @@ import numpy as np
 
 from .probability import TailProbability
 
-__all__ = ["ProductLimit", "product_limit", "regularized_sigma2"]
+__all__ = ["ProductLimit", "product_limit", "regularized_sigma2", "prefix_counts"]
 
 # Cells of the running count matrix built at a time (bounds the memory of long logs).
 _BLOCK_CELLS = 1 << 21
@@ -162,7 +162,7 @@ def product_limit(times, suspended, threshold, prefixes=None) -> ProductLimit:
     column = np.full(x.size, -1, dtype=np.int64)
     column[failed_below] = np.searchsorted(cuts, x[failed_below], side="left")
     column[suspended_below] = stretches + np.searchsorted(cuts, x[suspended_below], side="left")
-    counts = _counts_at(column, 2 * stretches - 1, n)
+    counts = prefix_counts(column, 2 * stretches - 1, n)
     failures, suspensions = counts[:, :stretches], counts[:, stretches:]
     removed_before = np.cumsum(failures, axis=1) - failures
     removed_before[:, 1:] += np.cumsum(suspensions, axis=1)
@@ -180,8 +180,12 @@ def product_limit(times, suspended, threshold, prefixes=None) -> ProductLimit:
     return result
 
 
-def _counts_at(column, width, prefixes):
-    """Per prefix n, how many of the first n units fall in each column (blocks of rows at a time)."""
+def prefix_counts(column, width, prefixes):
+    """Per prefix n, how many of the first n units fall in each of ``width`` columns.
+
+    ``column`` gives each unit's column (-1: none); ``prefixes`` increase.
+    Built a block of rows at a time, so memory stays bounded.
+    """
     out = np.zeros((prefixes.size, width), dtype=np.int64)
     base = np.zeros(width, dtype=np.int64)
     rows = max(1, _BLOCK_CELLS // max(width, 1))

@@ -330,7 +330,7 @@ def _first_stop(x, survivors, threshold, factor, pilot, method, shape, check_eve
         return None
     evaluator = _evaluator(x, survivors, threshold, method, model)
     sums = evaluator.running_sums(x, threshold, survivors)
-    start, size = 0, _FIRST_CHUNK
+    start, size = 0, getattr(evaluator, "first_chunk", _FIRST_CHUNK)
     while start < check_points.size:
         chunk = check_points[start:start + size]
         hits = evaluator.stops(sums, chunk, factor, threshold, shape)

@@ -13,8 +13,9 @@ import math
 from ..core import accuracy as _accuracy
 from ..core.methods import METHOD_NAMES, pass_fail_sigma2_from_p
 from ..core.operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
+from ..core.operating.time_terminated import simulate_with_test_time
 from . import cells
-from .estimate import HELP, clean_model, clean_shape_and_scale, planning_sigma2
+from .estimate import HELP, clean_model, clean_shape_and_scale, clean_test_time, planning_sigma2
 from .formula import formula
 
 EXACT_UNITS_LIMIT = 10_000
@@ -31,6 +32,8 @@ MODEL_DEFAULT_REPLICATIONS = 2_000
 MODEL_WORK_LIMIT = {"known-shape": 2_000_000, "fitted-shape": 2_000_000}
 MODEL_RUN_OVERHEAD = {"known-shape": 100, "fitted-shape": 100}
 WEIBULL_FITTED_WORK_LIMIT, WEIBULL_FITTED_RUN_OVERHEAD = 300_000, 1_000
+# a test stopped at a test time: one run at a time, each check point a censored fit
+TEST_TIME_DEFAULT_REPLICATIONS, TEST_TIME_WORK_LIMIT, TEST_TIME_RUN_OVERHEAD = 400, 40_000, 20
 
 PLAN_HELP = {
     "threshold": HELP["threshold"],
@@ -43,6 +46,7 @@ PLAN_HELP = {
     "replications": "Optional: simulated test runs for known-shape and fitted-shape (default 10,000)",
     "seed": "Optional: seed of the simulation; the same seed gives the same figures",
     "model": HELP["model"],
+    "test_time": HELP["test_time"],
 }
 
 
@@ -57,8 +61,10 @@ def _exact_limit(n_star, pilot):
             f"{EXACT_UNITS_LIMIT:,} units: ask for less accuracy, or run `tailstop plan`")
 
 
-def _budget(method, model):
+def _budget(method, model, test_time=None):
     """(default replications, work limit, run overhead) of a cell's simulation."""
+    if test_time is not None:  # each run refits its censored prefixes (operating/time_terminated.py)
+        return TEST_TIME_DEFAULT_REPLICATIONS, TEST_TIME_WORK_LIMIT, TEST_TIME_RUN_OVERHEAD
     if model == "gamma":
         return DEFAULT_REPLICATIONS[method], WORK_LIMIT[method], RUN_OVERHEAD[method]
     if model == "weibull" and method == "fitted-shape":
@@ -66,11 +72,13 @@ def _budget(method, model):
     return MODEL_DEFAULT_REPLICATIONS, MODEL_WORK_LIMIT[method], MODEL_RUN_OVERHEAD[method]
 
 
-def _replications(value, method, n_star, pilot, model="gamma"):
+def _replications(value, method, n_star, pilot, model="gamma", test_time=None):
     units = max(n_star, pilot)
-    default, limit, overhead = _budget(method, model)
+    default, limit, overhead = _budget(method, model, test_time)
     affordable = int(limit // (units + overhead))
     label = method if model == "gamma" else f"{model} {method}"
+    if test_time is not None:
+        label += " with a test time"
     if cells.is_missing(value):
         replications = min(default, affordable)
         if replications < 100:
@@ -92,19 +100,29 @@ def _seed(value):
     return cells.whole_number(value, "seed", minimum=0, maximum=SEED_LIMIT)
 
 
-def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model=None):
-    """Operating characteristics for formula arguments as a spreadsheet passes them."""
+def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model=None,
+                    test_time=None):
+    """Operating characteristics for formula arguments as a spreadsheet passes them.
+
+    With a test time the parametric methods are simulated on the censored test
+    (``operating.time_terminated``); pass-fail keeps its exact figures (a test
+    time below the threshold is refused).
+    """
     name = cells.method_name(method, METHOD_NAMES)
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
-    sigma2 = planning_sigma2(threshold, shape, scale, name, model)
+    sigma2 = planning_sigma2(threshold, shape, scale, name, model, test_time)
     n_star = float(_accuracy.units_for_accuracy(sigma2, d, level))
     m = _pilot(pilot)
     c = cells.positive(threshold, "threshold")
     a, s, model_name = clean_shape_and_scale(shape, scale, model)
+    stop = clean_test_time(test_time, c, name)
     if name == "pass-fail":
         _exact_limit(n_star, m)
         return operating_characteristics(c, a, s, d, level, m, name, model=model_name)
-    count = _replications(replications, name, n_star, m, model_name)
+    count = _replications(replications, name, n_star, m, model_name, stop)
+    if stop is not None:
+        return simulate_with_test_time(c, a, s, d, level, m, name, stop, replications=count, seed=_seed(seed),
+                                       model=model_name)
     return operating_characteristics(c, a, s, d, level, m, name, replications=count, seed=_seed(seed),
                                      model=model_name)
 
@@ -113,11 +131,14 @@ def _number_or_text(value):
     return value if math.isfinite(value) else "beyond n_max"
 
 
-def summary_table(result, model="gamma"):
-    """The 2-column labelled table of PLAN_SUMMARY (a ``model`` row under a Weibull or lognormal guess)."""
+def summary_table(result, model="gamma", test_time=None):
+    """The 2-column labelled table of PLAN_SUMMARY (a ``model`` row under a Weibull or lognormal guess,
+    a ``test time`` row when every unit is stopped at one)."""
     rows = [["method", result.method]]
     if model != "gamma":
         rows.append(["model", model])
+    if test_time is not None:
+        rows.append(["test time (each unit stopped)", test_time])
     rows.append(["figures", "exact" if result.exact else "simulated"])
     if not result.exact:
         rows += [["replications", result.replications], ["seed", result.seed]]
@@ -134,7 +155,7 @@ PLAN_ARGUMENTS = dict(
     threshold=PLAN_HELP["threshold"], shape=PLAN_HELP["shape"], scale=PLAN_HELP["scale"],
     accuracy=PLAN_HELP["accuracy"], confidence=PLAN_HELP["confidence"], pilot=PLAN_HELP["pilot"],
     method=PLAN_HELP["method"], replications=PLAN_HELP["replications"], seed=PLAN_HELP["seed"],
-    model=PLAN_HELP["model"],
+    model=PLAN_HELP["model"], test_time=PLAN_HELP["test_time"],
 )
 
 
@@ -147,26 +168,29 @@ def _finite(value, what):
 
 @formula(**PLAN_ARGUMENTS)
 def PLAN_EXPECTED_UNITS(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None,
-                        model=None):
+                        model=None, test_time=None):
     """Expected number of units E[N] the sequential rule will test under the guessed model parameters."""
-    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model)
+    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model,
+                             test_time)
     return _finite(result.expected_units, "E[N]")
 
 
 @formula(**PLAN_ARGUMENTS)
 def PLAN_COVERAGE(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None,
-                  model=None):
+                  model=None, test_time=None):
     """Real coverage of the final interval of the sequential rule under the guessed model parameters."""
     return plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed,
-                           model).coverage
+                           model, test_time).coverage
 
 
 @formula(returns="table", **PLAN_ARGUMENTS)
 def PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot, method=None, replications=None, seed=None,
-                 model=None):
+                 model=None, test_time=None):
     """Table (2 columns) of what the sequential rule will do: n*, E[N], sd and quantiles of N, coverage."""
-    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model)
-    return summary_table(result, clean_model(model))
+    result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model,
+                             test_time)
+    return summary_table(result, clean_model(model), None if cells.is_missing(test_time) else
+                         cells.positive(test_time, "test_time"))
 
 
 @formula(returns="table", p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"],
