@@ -9,11 +9,10 @@
    stops (the accuracy needs twice the rows); for fitted-shape also a late
    stop with the threshold far in the tail, the hardest case for its screen
    (see sequential.py). Targets: known-shape and
-   pass-fail within 10x of the baseline, fitted-shape under 3 s.
-2. The same through the spreadsheet formula STOP_DECISION_COLUMN (cleaning
-   the cells and writing the column), for a full column of data and for a
-   whole-column reference holding a 500-row log.
-3. fitted-shape against the naive way, refitting every prefix with
+   pass-fail within 10x of the baseline, fitted-shape under 3 s. The same
+   through the spreadsheet formula, cells in and out, is
+   benchmarks/bench_formula_boundary.py.
+2. fitted-shape against the naive way, refitting every prefix with
    scipy.stats.gamma.fit, at 2,000 rows.
 
 The data are invented: gamma lifetimes (shape 2.4, scale 520 kcycles),
@@ -30,7 +29,6 @@ from scipy import stats
 from tailstop.core.methods import model_sigma2
 from tailstop.core.rule import boundary_factor
 from tailstop.core.sequential import decision_column
-from tailstop.sheet.decisions import STOP_DECISION_COLUMN
 from tailstop.core.models.gamma.variance import sigma2_fitted_shape
 
 ROWS = 1_048_576
@@ -95,15 +93,7 @@ def main():
             print(f"{method:13s} {case:12s} {stop:>10s} {seconds * 1e3:7.1f} ms {ratio:25.1f}  {target}")
 
     print()
-    print("through the formula STOP_DECISION_COLUMN (cells in, a column of text out), stops early")
-    full = [[float(v)] for v in x]
-    log_in_column = [[float(v)] for v in x[:500]] + [[None]] * (ROWS - 500)
-    for label, cells in (("1,048,576 filled rows", full), ("500-row log in a whole column", log_in_column)):
-        for method, shape in METHODS:
-            seconds, _ = best_time(
-                lambda: STOP_DECISION_COLUMN(cells, THRESHOLD, 1.5, CONFIDENCE, PILOT, method, shape), repeat=2)
-            print(f"  {label:30s} {method:13s} {seconds * 1e3:8.1f} ms   ratio = {seconds / reference:6.1f}")
-
+    print("through the formula (cells in, a column of cells out): benchmarks/bench_formula_boundary.py")
     print()
     small = x[:2000]
     accuracy = accuracy_for("fitted-shape", 1900)

@@ -20,7 +20,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import special, stats
 
-import tailstop.sheet
+import tailstop.sheet  # noqa: F401 - registers every formula
 from tailstop.core.accuracy import critical_value
 from tailstop.sheet.cells import ColumnPrefixes, read_log_cells
 from tailstop.sheet.filled_down import filled_down, takes_a_log_first

@@ -16,6 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from tailstop.core.sequential import decision_column
+from tailstop.sheet import cells as cells_module
 from tailstop.sheet import formula as formula_module
 from tailstop.sheet.cells import InputError, read_log_cells
 from tailstop.sheet.decisions import STOP_DECISION, STOP_DECISION_COLUMN
@@ -173,3 +174,34 @@ def test_a_whole_column_reference_reads_as_its_log():
     for field in ("values", "rows", "survivors"):
         assert np.array_equal(getattr(read, field), getattr(alone, field))
     assert read.filled_rows == alone.filled_rows == 500
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.sampled_from([[None], [""], [None], [None], [1.0], ["  "], (None,), [None, None]]),
+                max_size=300))
+def test_the_blank_rows_at_the_end_are_counted_exactly(rows):
+    # check value: counted one row at a time from the bottom
+    expected = 0
+    for row in reversed(rows):
+        if row not in ([None], [""]):
+            break
+        expected += 1
+    assert cells_module._blank_rows_at_end(rows) == expected
+    assert cells_module._blank_rows_at_end_by_stretches(rows) == expected
+
+
+def test_a_filled_row_far_below_the_log_is_found():
+    rows = [[1.0]] * 10 + [[None]] * 5000
+    rows[4000] = [2.0]
+    assert cells_module._blank_rows_at_end(rows) == 5010 - 4001
+
+
+def test_a_column_of_choices_is_the_column_of_their_values():
+    choices = ("", "PILOT", "CONTINUE", "#TAILSTOP! observations: row 3 holds text 'x'")
+    codes = np.array([1, 1, 2, 0, 3, 3], dtype=np.int8)
+    expected = np.array([choices[code] for code in codes], dtype=object)
+    assert typed(to_cells(cell_column(codes, choices=choices))) == typed(straightforward(expected))
+    with pytest.raises(TypeError):
+        cell_column(codes, choices=("a", None))
+    with pytest.raises(TypeError):
+        cell_column(np.array([0.0]), choices=("a",))

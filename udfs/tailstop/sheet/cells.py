@@ -411,7 +411,10 @@ def read_log_cells(values, name="observations", *, single_column=False) -> LogCe
     """
     if type(values) is LogPrefix and values.log.name == name:
         return values.log
-    blank_below = _blank_rows_at_end(values) if isinstance(values, list) else 0
+    try:
+        blank_below = _blank_rows_at_end(values) if isinstance(values, list) else 0
+    except (TypeError, ValueError):  # rows that do not compare with a list (arrays): nothing is left out
+        blank_below = 0
     rows = _rows_of(values[: len(values) - blank_below] if blank_below else values)
     lengths = set(map(len, rows))
     is_column = lengths <= {1}
@@ -447,14 +450,54 @@ def read_log_cells(values, name="observations", *, single_column=False) -> LogCe
                     problem, name, is_column)
 
 
+_BLANK_ROWS = ([None], [""])
+
+
 def _blank_rows_at_end(rows) -> int:
     """How many rows at the end are a single blank cell (``[None]`` or ``[""]``), in C-level passes.
 
     A whole-column reference passes a million rows, nearly all ``[None]``
     below the log; they are left out before any row is looked at one by one.
-    Stretches at the end double while they are all blank, then halve down to
-    single rows, as in ``_trailing_blanks``.
+    A few rows are probed to find where the blank rows at the end begin
+    (galloping up from the bottom, then halving), and one count over the
+    list confirms that every row below is blank; when it is not (a filled
+    row far down), the stretches are counted from the bottom up instead.
     """
+    size = len(rows)
+    if not size or rows[-1] not in _BLANK_ROWS:
+        return 0
+    filled, blank, step = -1, size - 1, 1
+    while size - 1 - step >= 0:
+        if rows[size - 1 - step] not in _BLANK_ROWS:
+            filled = size - 1 - step
+            break
+        blank, step = size - 1 - step, step * 2
+    while blank - filled > 1:
+        middle = (filled + blank) // 2
+        if rows[middle] in _BLANK_ROWS:
+            blank = middle
+        else:
+            filled = middle
+    if _count_blank_rows(rows, blank) == size - blank:
+        return size - blank
+    return _blank_rows_at_end_by_stretches(rows)
+
+
+def _count_blank_rows(rows, start):
+    """Blank rows in ``rows[start:]``, counted without copying the longer part of the list."""
+    counts = []
+    for blank in _BLANK_ROWS:
+        if len(rows) - start <= start:
+            counts.append(rows[start:].count(blank))
+        else:
+            counts.append(rows.count(blank) - rows[:start].count(blank))
+        if sum(counts) == len(rows) - start:
+            break
+    return sum(counts)
+
+
+def _blank_rows_at_end_by_stretches(rows) -> int:
+    """As ``_blank_rows_at_end``: stretches at the end double while all blank, then halve (``_trailing_blanks``)."""
     end, step, growing = len(rows), 64, True
     while end and step:
         start = max(0, end - step)
@@ -505,7 +548,8 @@ def _fast_log_numbers(cells):
         numbers = np.array(cells, dtype=float)
     except OverflowError:
         return None
-    if np.count_nonzero(np.isnan(numbers)) != cells.count(None):
+    blanks = np.count_nonzero(np.isnan(numbers))  # a None is a NaN: without a NaN there is no None to count
+    if blanks and blanks != cells.count(None):
         return None  # a NaN that is not a blank: let the slow reader name it
     good = np.isnan(numbers) | (np.isfinite(numbers) & (numbers > 0))
     bad_at = None if good.all() else int(np.argmin(good))

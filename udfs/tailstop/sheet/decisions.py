@@ -28,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..core.rule import MIN_PILOT
-from ..core.sequential import decision_column, two_stage_plan, units_needed_now
+from ..core.sequential import STATE_NAMES, decision_column, two_stage_plan, units_needed_now
 from . import cells
 from .estimate import HELP, clean_method_and_shape
 from .formula import cell_column, formula
@@ -118,11 +118,13 @@ def STOP_DECISION_COLUMN(observations, threshold, accuracy, confidence, pilot, m
     request = _request(threshold, accuracy, confidence, method, shape, model)
     m, k = _pilot(pilot), _check_every(check_every)
     log = _read_log(observations, request, single_column=True)
-    column = np.full(max(log.filled_rows, 1), "", dtype=object)
-    column[log.rows] = _decisions(log, request, m, k).labels
+    # one code per row: 0 a blank row, 1 + the state of a unit's decision, then the problem's text
+    codes = np.zeros(max(log.filled_rows, 1), dtype=np.int8)
+    codes[log.rows] = _decisions(log, request, m, k).states + 1
     if log.problem is not None:
-        column[log.problem_row:] = f"{cells.ERROR_PREFIX} {log.problem}"
-    return cell_column(column)
+        codes[log.problem_row:] = len(STATE_NAMES) + 1
+    texts = ("", *STATE_NAMES, f"{cells.ERROR_PREFIX} {log.problem}")
+    return cell_column(codes, choices=texts)
 
 
 def _units_so_far(values, request, name, subject) -> cells.LogCells:

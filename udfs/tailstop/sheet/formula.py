@@ -159,7 +159,7 @@ class _CellColumn(list):
     """Rows of one plain cell value each, made by ``cell_column``; ``to_cells`` takes it as it is."""
 
 
-def cell_column(values):
+def cell_column(values, choices=None):
     """The result of a formula that returns a column: one row per value.
 
     The same rows as ``to_cells([[value] for value in values])``, made in one
@@ -169,7 +169,11 @@ def cell_column(values):
     Parameters
     ----------
     values : ndarray, 1-D
-        Text (an object array holding only ``str``), numbers or booleans.
+        Text (an object array holding only ``str``), numbers or booleans; with
+        ``choices``, whole numbers indexing into it.
+    choices : sequence, optional
+        The few distinct values of the column (checked once each), as for
+        a column of states.
 
     Raises
     ------
@@ -181,6 +185,20 @@ def cell_column(values):
     values = np.asarray(values)
     if values.ndim != 1:
         raise TypeError("cell_column takes one value per row")
+    if choices is not None:
+        if values.dtype.kind not in "iu":
+            raise TypeError("cell_column takes whole numbers indexing into its choices")
+        options = np.empty(len(choices), dtype=object)
+        options[:] = list(choices)
+        _check_column_values(options)
+        values = options[values]
+    else:
+        _check_column_values(values)
+    with _collector_paused():
+        return _CellColumn(values.reshape(-1, 1).tolist())
+
+
+def _check_column_values(values):
     if values.dtype == object:
         if not set(map(type, values.tolist())) <= {str}:
             raise TypeError("cell_column takes text, numbers or booleans")
@@ -189,8 +207,6 @@ def cell_column(values):
             raise ValueError(_NOT_FINITE)
     elif values.dtype.kind not in "biuU":
         raise TypeError(f"cell_column cannot take values of type {values.dtype}")
-    with _collector_paused():
-        return _CellColumn(values.reshape(-1, 1).tolist())
 
 
 @contextlib.contextmanager

@@ -34,7 +34,6 @@ import formulas
 import numpy as np
 import schedula
 from formulas.functions import replace_empty
-from openpyxl.utils.cell import column_index_from_string
 from openpyxl.worksheet.formula import ArrayFormula
 
 __all__ = ["FilledColumn", "take_out", "put_back"]
