@@ -132,3 +132,10 @@ def test_install_as_root_says_what_to_do(capsys):
     assert main(["extension", "install"]) == 1
     message = capsys.readouterr().err
     assert "--shared" in message and "as the user who runs LibreOffice" in message
+
+
+def test_the_missing_package_is_named_also_through_libreoffices_import_hook(component):
+    # the text LibreOffice's uno.py puts in place of a failed `from x import y` (python3-uno, Debian 12)
+    replaced = ImportError("No module named 'scipy' (or 'estimate.TAIL_PROB' is unknown)")
+    assert "cannot import scipy:" in component.import_problem(replaced)
+    assert "cannot import numpy:" in component.import_problem(ModuleNotFoundError("x", name="numpy.linalg"))

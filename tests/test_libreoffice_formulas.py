@@ -301,3 +301,21 @@ def test_install_for_an_ordinary_user_with_no_profile_yet(office, tmp_path_facto
         assert math.isclose(value, math.exp(-2.5) * 3.5, rel_tol=1e-14)
     finally:
         shutil.rmtree(home, ignore_errors=True)
+
+
+def test_without_numpy_in_libreoffice_every_formula_says_what_to_install(office, tmp_path):
+    """An extension whose bundled folder shadows numpy with one that cannot be imported, as if it were missing."""
+    oxt = build_extension(tmp_path / "oxt")
+    with zipfile.ZipFile(oxt, "a") as archive:  # pythonpath/ comes first on LibreOffice's sys.path
+        archive.writestr("pythonpath/numpy/__init__.py",
+                         "raise ModuleNotFoundError(\"No module named 'numpy'\", name='numpy')\n")
+    sandbox = Sandbox(tmp_path / "sandbox")
+    sandbox.install(oxt)
+    book = openpyxl.Workbook()
+    book.active["A1"] = "=TAILSTOP.TAIL_PROB(1000, 2, 400)"
+    book.active["B1"] = ArrayFormula("B1:C2", "=TAILSTOP.PLAN_SUMMARY_FROM_P(0.3, 2, 0.9, 5)")
+    book.save(tmp_path / "book.xlsx")
+    shown = openpyxl.load_workbook(sandbox.convert(tmp_path / "book.xlsx", tmp_path / "out"), data_only=True).active
+    message = shown["A1"].value
+    assert message.startswith("#TAILSTOP! LibreOffice's Python") and "cannot import numpy" in message
+    assert {shown[cell].value for cell in ("B1", "C1", "B2", "C2")} == {message}

@@ -14,6 +14,7 @@ those and what the formulas take and give, as xlwings would.
 """
 import json
 import os
+import re
 import sys
 
 try:  # absent when the file is imported outside LibreOffice, e.g. by tests
@@ -58,9 +59,26 @@ def _bundled_package_first():
     sys.path.insert(0, bundled)
 
 
+def _missing_module(problem):
+    """The name of the module that could not be found.
+
+    LibreOffice's import hook (``uno.py``) replaces a failed ``from x import y``
+    by an ImportError of its own whose message only quotes the original one, so
+    the message is read when no error down the chain names the module.
+    """
+    seen, message = set(), str(problem)
+    while problem is not None and id(problem) not in seen:
+        seen.add(id(problem))
+        if isinstance(problem, ModuleNotFoundError) and problem.name:
+            return problem.name.split(".")[0]
+        problem = problem.__cause__ or problem.__context__
+    quoted = re.search(r"No module named '([^'.]+)", message)
+    return quoted.group(1) if quoted else None
+
+
 def import_problem(missing):
     """The one cell text every formula shows when LibreOffice's Python lacks a package."""
-    name = getattr(missing, "name", None) or str(missing)
+    name = _missing_module(missing) or str(missing)
     version = "%d.%d" % sys.version_info[:2]
     return (f"{ERROR_PREFIX} LibreOffice's Python {version} cannot import {name}: install numpy and scipy "
             f"for it (Debian/Ubuntu: apt install python3-numpy python3-scipy; elsewhere see the "
