@@ -185,7 +185,7 @@ def shown_errors(book):
             for cell in row if cell.data_type == "e" or cell.value in EXCEL_ERRORS]
 
 
-@pytest.mark.parametrize("live", [False], ids=["values"])
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
 def test_libreoffice_shows_what_was_written(tmp_path, soffice, streaming, live):
     path = bearing_log(tmp_path / "bearing.xlsx", average=False)
     result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "out.xlsx", live=live)
@@ -208,3 +208,58 @@ def test_libreoffice_shows_what_was_written(tmp_path, soffice, streaming, live):
             checked += stored is not None
     assert checked > 80
     assert shown[SHEET]["H5"].value == pytest.approx(np.mean(bearing_hours()))  # the user's own formula
+
+
+# --------------------------------------------------------------------------- live decisions in other programs
+
+
+def test_live_decisions_on_blank_rows_are_guarded_and_recalculate_in_one_pass(tmp_path, monkeypatch, streaming):
+    from test_filled_down import cell_by_cell, same_values, taken_out
+
+    hours = bearing_hours()
+    path = bearing_log(tmp_path / "bearing.xlsx", hours, average=False)
+    result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "live.xlsx", live=True)
+    sheet = openpyxl.load_workbook(result.path)[SHEET]
+    guarded = sheet["E9"].value  # row 9 is blank
+    assert guarded.startswith('=IF(ISBLANK(C9),"",STOP_DECISION($C$4:C9,')
+    columns, values = taken_out(result.path, monkeypatch)
+    # the guarded decisions are still computed as one column, and the same as the engine computes each cell
+    # (and the block's "Decision after the last row", the same call on the whole log)
+    assert [(column.name, len(column.cells)) for column in columns] == [("STOP_DECISION", result.log.rows + 1)]
+    same_values(values, cell_by_cell(result.path, monkeypatch))
+    cached = openpyxl.load_workbook(result.path, data_only=True)[SHEET]
+    for row in range(FIRST_ROW, result.log.last_row + 1):
+        assert (values[(SHEET.upper(), f"E{row}")] or None) == (cached[f"E{row}"].value or None), row
+
+
+@pytest.mark.parametrize("formula_text", [
+    '=IF(ISBLANK(B{row}),"",TAIL_PROB_EST($B$2:B{row},1500))',  # not a decision: "" is not its blank-row value
+    '=IF(ISBLANK(B{previous}),"",STOP_DECISION($B$2:B{row},1500,1.4,0.9,4))',  # guards another cell
+])
+def test_other_guards_stay_with_the_engine(tmp_path, monkeypatch, formula_text):
+    from test_filled_down import cell_by_cell, same_values, taken_out
+
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet["B1"] = "Hours"
+    for row, value in enumerate(bearing_hours(30), start=2):
+        sheet.cell(row, 2, None if row == 9 else value)
+        sheet.cell(row, 3, formula_text.format(row=row, previous=row - 1))
+    book.save(tmp_path / "guards.xlsx")
+    columns, values = taken_out(tmp_path / "guards.xlsx", monkeypatch)
+    assert columns == []
+    same_values(values, cell_by_cell(tmp_path / "guards.xlsx", monkeypatch))
+
+
+def test_a_recalculated_live_log_shows_its_values_in_libreoffice(tmp_path, soffice, streaming):
+    from tailstop.workbooks.recalc import recalc
+
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "live.xlsx", live=True)
+    computed = recalc(result.path, tmp_path / "recalc.xlsx")
+    assert computed.errors == []
+    shown = openpyxl.load_workbook(convert_with_libreoffice(computed.path, tmp_path / "lo"), data_only=True)
+    assert shown_errors(shown) == []
+    written = openpyxl.load_workbook(computed.path, data_only=True)[SHEET]
+    for row in range(FIRST_ROW, result.log.last_row + 1):
+        assert (shown[SHEET][f"E{row}"].value or None) == (written[f"E{row}"].value or None), row

@@ -44,6 +44,11 @@ MIN_CELLS = 2
 _CALL = re.compile(r"^=\s*(?P<name>[A-Za-z_][A-Za-z0-9_.]*)\((?P<arguments>.*)\)\s*$", re.S)
 _RANGE = re.compile(r"^\$?(?P<c1>[A-Za-z]{1,3})\$?(?P<r1>[0-9]+):\$?(?P<c2>[A-Za-z]{1,3})\$?(?P<r2>[0-9]+)$")
 _CELL = re.compile(r"^\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)$")
+# =IF(ISBLANK(B9),"",STOP_DECISION($B$2:B9,…)): a decision that shows an empty cell on a blank row anyway,
+# guarded so that a spreadsheet without the add-in shows it too; computed as the call inside
+_BLANK_GUARD = re.compile(r'^=\s*IF\(\s*ISBLANK\(\s*\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)\s*\)\s*,\s*""\s*,'
+                          r"\s*(?P<call>.*)\)\s*$", re.S)
+GUARDED = {"STOP_DECISION"}  # formulas whose value on a blank last row is "" (the guard changes nothing)
 # placeholder the engine holds for a taken-out cell until its value is known
 _PLACEHOLDER = ""
 
@@ -129,7 +134,8 @@ def _recognise(cell, prefixes, eligible, constants):
     """(name, column, first row, last row, arguments) of a filled-down call, or None."""
     if cell.data_type != "f" or isinstance(cell.value, ArrayFormula) or not isinstance(cell.value, str):
         return None
-    call = _CALL.match(cell.value)
+    guard = _BLANK_GUARD.match(cell.value)
+    call = _CALL.match("=" + guard["call"] if guard else cell.value)
     if call is None:
         return None
     name = call["name"].upper()
@@ -142,6 +148,9 @@ def _recognise(cell, prefixes, eligible, constants):
     arguments = split_arguments(call["arguments"])
     span = _RANGE.match(arguments[0])
     if span is None or span["c1"].upper() != span["c2"].upper() or int(span["r2"]) < int(span["r1"]):
+        return None
+    if guard and (name not in GUARDED or (guard["column"].upper(), int(guard["row"])) != (span["c2"].upper(),
+                                                                                          int(span["r2"]))):
         return None
     rest = tuple(arguments[1:])
     for text in rest:

@@ -727,8 +727,14 @@ def decision_rule(layout: BlockLayout) -> str:
 
 
 def decision_formula(log: LogRange, row: int, rule: str) -> str:
-    """``=STOP_DECISION($B$2:B<row>, <rule>)``: the live decision of one row."""
-    return f"=STOP_DECISION({log.growing_reference(row)},{rule})"
+    """``=IF(ISBLANK(B<row>),"",STOP_DECISION($B$2:B<row>, <rule>))``: the live decision of one row.
+
+    STOP_DECISION shows an empty cell on a blank row anyway; the guard says so with the spreadsheet's own
+    functions, so that a program without the add-in, which recalculates a formula whose stored value is
+    empty text (LibreOffice does), shows the empty cell instead of an unknown-function error.
+    """
+    return f'=IF(ISBLANK({log.letter}{row}),"",STOP_DECISION({log.growing_reference(row)},{rule}))'
+
 
 
 def decision_cell(log: LogRange, column: int, row: int, decision: str, rule: str | None = None):
