@@ -59,7 +59,7 @@ def censored_units(times, suspended, threshold, method):
     if suspended is None:
         return np.zeros(x.size, dtype=bool)
     flags = np.asarray(suspended, dtype=bool).ravel()
-    return flags & (x < threshold) if method == "pass-fail" else flags
+    return flags & (x < threshold) if method in ("pass-fail", "pass-fail-exact") else flags
 
 
 def is_censored(times, suspended, threshold, method) -> bool:

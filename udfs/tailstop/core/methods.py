@@ -7,6 +7,8 @@
   lifetime model; a unit taken off test at or beyond the threshold without
   failing (a survivor) counts as beyond it.
 * ``fitted-shape`` — shape and scale both by ML of the model (location 0).
+* ``pass-fail-exact`` — pass-fail's estimate; only its stopping rule differs
+  (a tuned boundary whose coverage is guaranteed exactly: ``core.guaranteed``).
 
 The model (``core.models.MODELS``: gamma, the default, Weibull, lognormal)
 is an argument of every function here; pass-fail ignores it.
@@ -30,6 +32,8 @@ from .probability import TailProbability
 
 __all__ = [
     "METHOD_NAMES",
+    "PASS_FAIL_METHODS",
+    "SUSPENDED_BELOW_EXACT",
     "SufficientStatistics",
     "TailEstimate",
     "estimate_from_statistics",
@@ -244,7 +248,16 @@ class _FittedShape:
         return model.sigma2_fitted_shape(shape, t)
 
 
-_METHODS = {m.name: m for m in (_KnownShape(), _PassFail(), _FittedShape())}
+class _PassFailExact(_PassFail):
+    """pass-fail's estimate and interval; its stopping rule has a tuned boundary (``core.guaranteed``)."""
+
+    name = "pass-fail-exact"
+
+
+PASS_FAIL_METHODS = ("pass-fail", "pass-fail-exact")
+SUSPENDED_BELOW_EXACT = ("a unit taken off test below the threshold has no exact guarantee in pass-fail-exact "
+                         "(it counts units on each side only): use pass-fail for a log with such units")
+_METHODS = {m.name: m for m in (_KnownShape(), _PassFail(), _FittedShape(), _PassFailExact())}
 METHOD_NAMES = tuple(_METHODS)
 
 
@@ -312,6 +325,8 @@ def _check_sample(x, threshold, model, shape, survivors, lifetime):
         raise ValueError(f"known-shape needs the {lifetime.title} shape, a positive number")
     if survivors is not None and np.size(survivors) != x.size:
         raise ValueError(f"survivors must have one flag per lifetime ({x.size}, got {np.size(survivors)})")
+    if survivors is not None and model.name == "pass-fail-exact" and np.any(np.asarray(survivors, bool) & (x < threshold)):
+        raise ValueError(SUSPENDED_BELOW_EXACT)
 
 
 def _as_scalars(result: TailEstimate) -> TailEstimate:

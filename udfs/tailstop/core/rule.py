@@ -17,6 +17,10 @@ Degenerate prefixes never stop:
   exist (σ̂² is NaN) and the rule continues;
 * any σ̂² that is NaN or infinite means "continue".
 
+pass-fail-exact uses the same σ̃² with its own tuned boundary
+n >= c (z / log d)² σ̃² (``guaranteed.stop_condition``, c from
+``guaranteed.tuning``), and the same no-stop while S = 0 or S = n.
+
 References: Chow, Y. S. & Robbins, H. (1965), Ann. Math. Statist. 36,
 457–462; Banerjee, S. & Mukhopadhyay, N. (2016), Ann. Inst. Stat. Math. 68,
 541–570.
@@ -25,8 +29,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import guaranteed
 from .accuracy import critical_value
-from .methods import estimate_from_statistics
+from .methods import PASS_FAIL_METHODS, estimate_from_statistics
 from .models import DEFAULT_MODEL
 
 __all__ = ["MIN_PILOT", "rule_sigma2", "boundary_factor", "is_check_point", "stops"]
@@ -53,6 +58,8 @@ def rule_sigma2(statistics, threshold, method, shape=None, model=DEFAULT_MODEL):
     """σ̂²_n as the stopping rule uses it, for every set of statistics (NaN = undefined)."""
     if method == "pass-fail":
         return pass_fail_rule_sigma2(statistics.n, statistics.exceedances)
+    if method == "pass-fail-exact":
+        return regularized_pass_fail_sigma2(statistics.n, statistics.exceedances)
     with np.errstate(all="ignore"):
         return np.asarray(estimate_from_statistics(statistics, threshold, method, shape, model).sigma2, dtype=float)
 
@@ -75,6 +82,9 @@ def stops(statistics, threshold, accuracy, confidence, pilot, method, shape=None
     This is the stop condition at each n on its own; the decision column is
     STOP at the first True and PAST STOP after it.
     """
+    if method == guaranteed.METHOD:
+        boundary = guaranteed.tuning(accuracy, confidence, pilot, check_every).boundary
+        return guaranteed.stop_condition(statistics.n, statistics.exceedances, boundary, pilot, check_every)
     sigma2 = rule_sigma2(statistics, threshold, method, shape, model)
     n = np.asarray(statistics.n)
     with np.errstate(invalid="ignore"):

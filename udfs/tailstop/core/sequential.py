@@ -46,7 +46,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .censored import CensoredRule, is_censored
-from .methods import METHOD_NAMES, SufficientStatistics
+from . import guaranteed
+from .methods import METHOD_NAMES, SUSPENDED_BELOW_EXACT, SufficientStatistics
 from .models import DEFAULT_MODEL, get_model
 from .models.gamma.fit import shape_from_log_ratio
 from .models.gamma.tail import log_density_term, tail_probability_standard
@@ -218,7 +219,7 @@ def decision_column(lifetimes, threshold, accuracy, confidence, pilot, method="p
     1/(p̂(1-p̂)) with the plain share p̂ = S/n, and no stop while S is 0 or n.
     """
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
-    factor = _check_plan(accuracy, confidence, pilot, check_every)
+    factor = _boundary(method, accuracy, confidence, pilot, check_every)
     pilot, check_every = int(pilot), int(check_every)
     stop = _first_stop(x, flags, threshold, factor, pilot, method, shape, check_every, model)
     states = np.full(x.size, CONTINUE, dtype=np.int8)
@@ -237,7 +238,7 @@ def stopping_units(lifetimes, threshold, accuracy, confidence, pilot, method="pa
     (simulations).
     """
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
-    factor = _check_plan(accuracy, confidence, pilot, check_every)
+    factor = _boundary(method, accuracy, confidence, pilot, check_every)
     return _first_stop(x, flags, threshold, factor, int(pilot), method, shape, int(check_every), model)
 
 
@@ -257,7 +258,7 @@ def units_needed_now(lifetimes, threshold, accuracy, confidence, method="pass-fa
         fitted-shape with all lifetimes equal.
     """
     x, flags = _check_log(lifetimes, threshold, method, shape, survivors)
-    factor = _check_plan(accuracy, confidence, MIN_PILOT, 1)
+    factor = _boundary(method, accuracy, confidence, MIN_PILOT, 1)
     sigma2 = _current_sigma2(x, flags, threshold, method, shape, model)
     return UnitsNeeded(units=int(x.size), sigma2=sigma2, needed=factor * sigma2)
 
@@ -277,7 +278,7 @@ def two_stage_plan(pilot_lifetimes, threshold, accuracy, confidence, method="pas
     Sequential Methods and Their Applications, 2009; from memory).
     """
     x, flags = _check_log(pilot_lifetimes, threshold, method, shape, survivors)
-    factor = _check_plan(accuracy, confidence, MIN_PILOT, 1)
+    factor = _boundary(method, accuracy, confidence, max(MIN_PILOT, x.size), 1)
     sigma2 = _current_sigma2(x, flags, threshold, method, shape, model)
     total = max(int(x.size), int(math.ceil(factor * sigma2)))
     return TwoStagePlan(pilot_units=int(x.size), sigma2=sigma2, total_units=total)
@@ -300,6 +301,14 @@ def _check_plan(accuracy, confidence, pilot, check_every):
     return boundary_factor(accuracy, confidence)
 
 
+def _boundary(method, accuracy, confidence, pilot, check_every):
+    """The factor F of the stop condition n >= F σ̂²: (z / log d)², or pass-fail-exact's tuned c (z / log d)²."""
+    factor = _check_plan(accuracy, confidence, pilot, check_every)
+    if method == guaranteed.METHOD:
+        return guaranteed.tuning(accuracy, confidence, int(pilot), int(check_every)).boundary
+    return factor
+
+
 def _check_log(lifetimes, threshold, method, shape, survivors):
     if method not in METHOD_NAMES:
         raise ValueError(f"method must be one of {', '.join(METHOD_NAMES)} (got {method!r})")
@@ -317,6 +326,8 @@ def _check_log(lifetimes, threshold, method, shape, survivors):
         raise ValueError(f"survivors must have one flag per lifetime ({x.size}, got {flags.size})")
     if not flags.any():
         return x, None
+    if method == guaranteed.METHOD and np.any(flags & (x < threshold)):
+        raise ValueError(SUSPENDED_BELOW_EXACT)
     return x, flags
 
 
@@ -487,7 +498,17 @@ class _FittedShape:
         return sigma2
 
 
-_EVALUATORS = {"pass-fail": _PassFail, "known-shape": _KnownShape, "fitted-shape": _FittedShape}
+class _PassFailExact(_PassFail):
+    """pass-fail's counts with the tuned stop condition of ``guaranteed.stop_condition`` (F is the tuned boundary)."""
+
+    @staticmethod
+    def stops(exceedances, n, factor, threshold, shape):
+        # ``n`` holds check points only, so the condition is asked with pilot 0 and every unit consulted
+        return guaranteed.stop_condition(n, exceedances[n - 1], factor, 0, 1)
+
+
+_EVALUATORS = {"pass-fail": _PassFail, "known-shape": _KnownShape, "fitted-shape": _FittedShape,
+               "pass-fail-exact": _PassFailExact}
 
 
 

@@ -10,8 +10,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..core import accuracy as _accuracy
+from ..core import guaranteed
 from ..core.methods import (
     METHOD_NAMES,
+    PASS_FAIL_METHODS,
     estimate_tail,
     model_sigma2,
     pass_fail_sigma2_from_p,
@@ -31,7 +33,7 @@ HELP = {
     "scale": "Scale > 0, unit of the lifetimes: gamma s (mean = shape * scale), Weibull eta, lognormal median e^mu",
     "accuracy": "Accuracy factor d > 1: the odds are to be known within a factor d (e.g. 1.5)",
     "confidence": "Confidence level between 0 and 1, e.g. 0.95",
-    "method": "Optional: pass-fail (default), known-shape or fitted-shape",
+    "method": "Optional: pass-fail (default), known-shape, fitted-shape or pass-fail-exact",
     "known_shape": "Optional: the model's shape, required when method is known-shape",
     "model": "Optional lifetime model: gamma (default), weibull or lognormal (as scipy.stats parameterises them)",
     "test_time": "Optional: every unit still running at this time is stopped there (a time-terminated test), "
@@ -126,7 +128,7 @@ def estimate_from_cells(observations, threshold, method, shape, model=None):
 
 
 def _needs_both_sides(estimate):
-    if estimate.method == "pass-fail" and not 0 < estimate.p < 1:
+    if estimate.method in PASS_FAIL_METHODS and not 0 < estimate.p < 1:
         side = "exceeded" if estimate.p == 0 else "stayed below"
         raise cells.InputError(f"no unit {side} the threshold yet; bounds need units on both sides")
 
@@ -221,10 +223,16 @@ def unit_count(n_star) -> int:
     test_time=HELP["test_time"],
 )
 def UNITS_REQUIRED(threshold, shape, scale, accuracy, confidence, method=None, model=None, test_time=None):
-    """Units a fixed-size test needs for the accuracy at the confidence, from guessed model parameters."""
+    """Units a fixed-size test needs for the accuracy at the confidence, from guessed model parameters.
+
+    pass-fail-exact: the tuned boundary c·n* (pilot 2, every unit checked), the count its rule aims at.
+    """
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
     sigma2 = planning_sigma2(threshold, shape, scale, method, model, test_time)
-    return unit_count(_accuracy.units_for_accuracy(sigma2, d, level))
+    n_star = _accuracy.units_for_accuracy(sigma2, d, level)
+    if cells.method_name(method, METHOD_NAMES) == guaranteed.METHOD:
+        n_star = n_star * guaranteed.tuning(d, level, 2, 1).factor
+    return unit_count(n_star)
 
 
 @formula(p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"])
@@ -244,6 +252,9 @@ def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None, 
     """Accuracy factor d that a fixed-size test of this many units reaches at the confidence."""
     n = cells.whole_number(units, "units", minimum=1)
     level = cells.confidence(confidence)
+    if cells.method_name(method, METHOD_NAMES) == guaranteed.METHOD:
+        raise cells.InputError("pass-fail-exact is tuned for one accuracy at a time, so it has no accuracy for a "
+                               "unit count: use UNITS_REQUIRED with pass-fail-exact, or pass-fail here")
     sigma2 = planning_sigma2(threshold, shape, scale, method, model, test_time)
     with np.errstate(over="ignore"):
         d = float(_accuracy.accuracy_for_units(sigma2, n, level))

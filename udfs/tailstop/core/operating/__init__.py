@@ -64,7 +64,7 @@ __all__ = [
 # --------------------------------------------------------------------------- dispatch and comparison
 
 
-def _exact_from_guess(threshold, shape, scale, accuracy, confidence, pilot, **options):
+def _exact_from_guess(threshold, shape, scale, accuracy, confidence, pilot, method="pass-fail", **options):
     options.pop("replications", None)
     options.pop("seed", None)
     options.pop("screen", None)
@@ -73,7 +73,7 @@ def _exact_from_guess(threshold, shape, scale, accuracy, confidence, pilot, **op
     p = float(get_model(model).tail_probability(threshold, shape, scale).p)
     if not 0 < p < 1:
         raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
-    return pass_fail_exact(p, accuracy, confidence, pilot, **options)
+    return pass_fail_exact(p, accuracy, confidence, pilot, method=method, **options)
 
 
 def _simulated(method):
@@ -87,6 +87,7 @@ _BY_METHOD = {
     "pass-fail": _exact_from_guess,
     "known-shape": _simulated("known-shape"),
     "fitted-shape": _simulated("fitted-shape"),
+    "pass-fail-exact": lambda *plan, **options: _exact_from_guess(*plan, method="pass-fail-exact", **options),
 }
 
 
@@ -108,14 +109,15 @@ def compare_methods(threshold, shape, scale, accuracy, confidence, pilot, *, rep
                     model=DEFAULT_MODEL) -> MethodComparison:
     """n*, E[N], coverage... of the three methods at the same planning guess.
 
-    pass-fail exact; known-shape and fitted-shape simulated with the same seed
+    pass-fail and pass-fail-exact exact (side by side: what the guarantee costs in units);
+    known-shape and fitted-shape simulated with the same seed
     (``fitted_replications`` defaults to ``replications``).
     """
     plan = (threshold, shape, scale, accuracy, confidence, pilot)
     counts = {"known-shape": replications, "fitted-shape": fitted_replications or replications}
-    weights = {"pass-fail": 0.05, "known-shape": 0.25, "fitted-shape": 0.70}
+    weights = {"pass-fail": 0.03, "pass-fail-exact": 0.02, "known-shape": 0.25, "fitted-shape": 0.70}
     results, done = {}, 0.0
-    for method in ("pass-fail", "known-shape", "fitted-shape"):
+    for method in ("pass-fail", "pass-fail-exact", "known-shape", "fitted-shape"):
         def report(fraction, base=done, weight=weights[method]):
             if progress is not None:
                 progress(base + weight * fraction)

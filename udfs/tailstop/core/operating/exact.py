@@ -9,7 +9,7 @@ from scipy import stats
 
 from .. import accuracy as _accuracy
 from .. import rule
-from ..methods import SufficientStatistics, estimate_from_statistics
+from ..methods import PASS_FAIL_METHODS, SufficientStatistics, estimate_from_statistics
 from .results import (
     QUANTILE_LEVELS,
     OperatingCharacteristics,
@@ -29,7 +29,7 @@ _EXACT_TOLERANCE = 1e-12
 
 
 def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1, stop_z=None,
-                    progress=None) -> OperatingCharacteristics:
+                    progress=None, method="pass-fail") -> OperatingCharacteristics:
     """Exact operating characteristics of the pass-fail rule by forward propagation of (n, S).
 
     Parameters
@@ -49,6 +49,8 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
         Critical value for the stopping boundary instead of z(confidence).
     progress : callable, optional
         Called with the fraction done (0..1).
+    method : {'pass-fail', 'pass-fail-exact'}
+        Whose stopping rule: pass-fail-exact has its own tuned boundary (and no ``stop_z``).
 
     Notes
     -----
@@ -59,6 +61,10 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
     only over the S where the running probability is not exactly zero.
     """
     _check_plan(accuracy, confidence, pilot, check_every)
+    if method not in PASS_FAIL_METHODS:
+        raise ValueError(f"the exact propagation is for {' and '.join(PASS_FAIL_METHODS)} (got {method!r})")
+    if method != "pass-fail" and stop_z is not None:
+        raise ValueError(f"{method} has its own tuned boundary; a critical value for it cannot be given")
     if not 0 < p < 1:
         raise ValueError(f"the probability must be strictly between 0 and 1 (got {p!r})")
     pilot = int(pilot)
@@ -69,7 +75,7 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
         raise ValueError(f"n_max must be at least the pilot ({pilot}, got {cap})")
     stop_confidence = _stop_confidence(confidence, stop_z)
     propagation = _Propagation(p, pilot, cap)
-    stop_set = _PassFailStopSet(accuracy, stop_confidence, pilot, check_every)
+    stop_set = _PassFailStopSet(accuracy, stop_confidence, pilot, check_every, method)
     n = pilot
     while True:
         if (n - pilot) % _EXACT_BLOCK_ROWS == 0:
@@ -87,7 +93,7 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
     stopped_n, stopped_k, stopped_mass = propagation.stopped_states()
     covered = _pass_fail_covers(stopped_n, stopped_k, p, accuracy)
     return _exact_result(
-        probability=p, n_star=n_star, pilot=pilot, n_max=n, confidence=confidence,
+        method=method, probability=p, n_star=n_star, pilot=pilot, n_max=n, confidence=confidence,
         stop_z=_stop_z(confidence, stop_z), distribution=propagation.distribution[: n + 1],
         beyond=propagation.running_mass(), coverage=float(np.sum(stopped_mass[covered])),
     )
@@ -145,8 +151,8 @@ class _Propagation:
 class _PassFailStopSet:
     """``rule.stops`` on a block of the (n, S) grid, served row by row."""
 
-    def __init__(self, accuracy, stop_confidence, pilot, check_every):
-        self.arguments = (1.0, accuracy, stop_confidence, pilot, "pass-fail")
+    def __init__(self, accuracy, stop_confidence, pilot, check_every, method="pass-fail"):
+        self.arguments = (1.0, accuracy, stop_confidence, pilot, method)
         self.check_every = check_every
         self.first_n = self.first_k = 0
         self.grid = np.zeros((0, 0), bool)
@@ -216,10 +222,10 @@ def _distribution_figures(distribution):
     return mean, math.sqrt(max(variance, 0.0)), quantiles
 
 
-def _exact_result(*, probability, n_star, pilot, n_max, confidence, stop_z, distribution, beyond, coverage):
+def _exact_result(*, method="pass-fail", probability, n_star, pilot, n_max, confidence, stop_z, distribution, beyond, coverage):
     mean, sd, quantiles = _distribution_figures(distribution)
     return OperatingCharacteristics(
-        method="pass-fail", exact=True, probability=float(probability), n_star=n_star, pilot=pilot, n_max=int(n_max),
+        method=method, exact=True, probability=float(probability), n_star=n_star, pilot=pilot, n_max=int(n_max),
         confidence=float(confidence), stop_z=stop_z, expected_units=mean, sd_units=sd, quantiles=quantiles,
         beyond=float(beyond), coverage=float(coverage), quantiles_se={level: 0.0 for level in QUANTILE_LEVELS},
         distribution=distribution,
