@@ -401,11 +401,12 @@ def test_comparison_shows_what_the_shape_saves():
     # σ² known-shape <= fitted-shape <= pass-fail (information inequality; METHOD.md §3)
     comparison = op.compare_methods(1000.0, 2.0, 600.0, 1.6, 0.95, 10, replications=2000, fitted_replications=300)
     results = comparison.results
-    assert list(results) == ["pass-fail", "known-shape", "fitted-shape"]
-    assert results["pass-fail"].exact and not results["known-shape"].exact
+    assert list(results) == ["pass-fail", "pass-fail-exact", "known-shape", "fitted-shape"]
+    assert results["pass-fail"].exact and results["pass-fail-exact"].exact and not results["known-shape"].exact
+    assert results["pass-fail-exact"].coverage >= 0.95  # its guarantee (core.guaranteed)
     assert results["known-shape"].n_star < results["fitted-shape"].n_star < results["pass-fail"].n_star
     assert results["known-shape"].expected_units < results["fitted-shape"].expected_units < results["pass-fail"].expected_units
     table = comparison.table()
-    assert table[0] == ["", "pass-fail", "known-shape", "fitted-shape"]
-    assert all(len(row) == 4 for row in table)
-    assert any(row[0] == "coverage" and "±" in row[2] and "±" not in row[1] for row in table)
+    assert table[0] == ["", "pass-fail", "pass-fail-exact", "known-shape", "fitted-shape"]
+    assert all(len(row) == 5 for row in table)
+    assert any(row[0] == "coverage" and "±" in row[3] and "±" not in row[1] for row in table)

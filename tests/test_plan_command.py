@@ -25,7 +25,7 @@ def test_prints_the_three_methods_side_by_side(capsys):
     assert main(PLAN) == 0
     out = capsys.readouterr().out
     header = next(line for line in out.splitlines() if "pass-fail" in line and "known-shape" in line)
-    assert header.split() == ["pass-fail", "known-shape", "fitted-shape"]
+    assert header.split() == ["pass-fail", "pass-fail-exact", "known-shape", "fitted-shape"]
     rows = table_rows(out)
     for label in ("fixed-size units n*", "expected units E[N]", "sd of N", "N 50% quantile", "coverage"):
         assert label in rows

@@ -118,6 +118,8 @@ def run(args, out=None, progress_stream=None):
     print(f"True probability beyond the threshold under the guess: p = {first.probability:.6g}", file=out)
     print(file=out)
     print(_aligned(comparison.table()), file=out)
+    if "pass-fail-exact" in comparison.results:
+        print(_guarantee_line(args.accuracy, args.confidence, args.pilot), file=out)
     if args.calibrate:
         print(file=out)
         print(_aligned(_calibration_table(plan, counts, args.seed, progress_stream, args.model)), file=out)
@@ -163,6 +165,19 @@ def _with_test_time(plan, test_time, counts, seed, progress, model="gamma"):
             *plan, method, test_time, replications=counts[method], seed=seed, model=model,
             progress=lambda fraction, base=base, share=share: progress(base + share * fraction))
     return operating.MethodComparison(results)
+
+
+EXACT_METHODS = ("pass-fail", "pass-fail-exact")
+
+
+def _guarantee_line(accuracy, confidence, pilot):
+    """What pass-fail-exact guarantees, and its price, in one sentence."""
+    from ..core import guaranteed
+
+    tuned = guaranteed.tuning(accuracy, confidence, pilot)
+    return (f"pass-fail-exact: boundary x{tuned.factor:.3f} of pass-fail's; exact coverage >= {confidence:g} "
+            f"(certified >= {tuned.coverage_bound:.4f}) for every p in [{tuned.p_low:.2g}, 1 - {tuned.p_low:.2g}]; "
+            f"pass-fail's coverage is asymptotic.")
 
 
 def _aligned(rows):
@@ -253,7 +268,7 @@ def _coverage_curves(plan, counts, seed, progress, model="gamma"):
     p_guess = float(get_model(model).tail_probability(threshold, shape, scale).p)
     odds = p_guess / (1 - p_guess)
     curves = {}
-    points = {"pass-fail": 25, "known-shape": 9, "fitted-shape": 5}
+    points = {"pass-fail": 25, "pass-fail-exact": 25, "known-shape": 9, "fitted-shape": 5}
     share = {"known-shape": 5, "fitted-shape": 4}
     total = sum(points.values())
     done = 0
@@ -264,7 +279,7 @@ def _coverage_curves(plan, counts, seed, progress, model="gamma"):
         for p in probabilities:
             truth = (threshold, shape, _scale_for(p, threshold, shape, model), accuracy, confidence, pilot)
             options = {"model": model}
-            if method != "pass-fail":
+            if method not in EXACT_METHODS:
                 options.update(replications=max(200, counts[method] // share[method]), seed=seed)
             result = operating.operating_characteristics(*truth, method, **options)
             values.append(result.coverage)
@@ -287,7 +302,8 @@ def _plot(path, plan, comparison, counts, seed, progress_stream, model="gamma"):
         bar.close()
     figure = Figure(figsize=(11, 4.5), layout="constrained")
     left, right = figure.subplots(1, 2)
-    colours = {"pass-fail": "tab:blue", "known-shape": "tab:green", "fitted-shape": "tab:orange"}
+    colours = {"pass-fail": "tab:blue", "pass-fail-exact": "tab:purple", "known-shape": "tab:green",
+               "fitted-shape": "tab:orange"}
     for method, result in comparison.results.items():
         if result.exact:
             n = np.arange(result.distribution.size)
@@ -304,7 +320,7 @@ def _plot(path, plan, comparison, counts, seed, progress_stream, model="gamma"):
     left.legend()
     confidence = plan[4]
     for method, (probabilities, values, errors) in curves.items():
-        if method == "pass-fail":
+        if method in EXACT_METHODS:
             right.plot(probabilities, values, color=colours[method], marker=".", label=f"{method} (exact)")
         else:
             right.errorbar(probabilities, values, yerr=2 * errors, color=colours[method], marker="o", capsize=3,
