@@ -53,7 +53,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special, stats
 
-from .methods import METHOD_NAMES, SufficientStatistics, estimate_tail
+from . import guaranteed
+from .methods import METHOD_NAMES, PASS_FAIL_METHODS, SufficientStatistics, estimate_tail
 from .models.gamma.fit import shape_from_log_ratio
 from .censored import NOT_YET_CODES, censoring_notes
 from .models import DEFAULT_MODEL, get_model
@@ -192,7 +193,19 @@ def method_notes(values, threshold, method="pass-fail", shape=None, accuracy=Non
     notes += censoring
     if check_accuracy:
         notes += _accuracy_notes(x, threshold, method, shape, accuracy, confidence, survivors, lifetime)
+        if method == guaranteed.METHOD:
+            notes += _guarantee_notes(accuracy, confidence)
     return notes
+
+
+def _guarantee_notes(accuracy, confidence):
+    """What pass-fail-exact guarantees at this accuracy and confidence (pilot 2, every unit checked)."""
+    tuned = guaranteed.tuning(accuracy, confidence, 2, 1)
+    return [Note("exact-guarantee",
+                 f"pass-fail-exact: the exact coverage of its final interval is at least {confidence * 100:g} % "
+                 f"for every true probability from {tuned.p_low:.2g} to {1 - tuned.p_low:.6g} "
+                 f"(boundary x{tuned.factor:.3f} of pass-fail's; pilot 2, every unit checked)",
+                 {"factor": tuned.factor, "p_low": tuned.p_low, "coverage_bound": tuned.coverage_bound})]
 
 
 def note_lines(notes) -> list:
@@ -275,7 +288,7 @@ def _fit_skipped(figures, lifetime):
 
 def _side_notes(n, beyond, below, method, lifetime):
     figures = {"units": n, "beyond": beyond, "below": below}
-    if method == "pass-fail" and (beyond == 0 or below == 0):
+    if method in PASS_FAIL_METHODS and (beyond == 0 or below == 0):
         side = "outlasted" if below == 0 else "failed at or before"
         return [Note("one-side-only",
                      f"all {n} units {side} the threshold: no pass-fail bounds yet, and the rule cannot stop",
@@ -286,7 +299,7 @@ def _side_notes(n, beyond, below, method, lifetime):
         count = f"{beyond} of {n} units outlasted the threshold"
     else:
         count = f"{below} of {n} units failed at or before the threshold"
-    consequence = ("the bounds are unreliable at such counts" if method == "pass-fail"
+    consequence = ("the bounds are unreliable at such counts" if method in PASS_FAIL_METHODS
                    else f"the estimate rests on the {lifetime.title} model, not on observed units")
     return [Note("few-on-a-side", f"{count} (fewer than {MIN_PER_SIDE}): {consequence}", figures)]
 

@@ -47,7 +47,7 @@ import numpy as np
 
 from .censored import CensoredRule, is_censored
 from . import guaranteed
-from .methods import METHOD_NAMES, SUSPENDED_BELOW_EXACT, SufficientStatistics
+from .methods import METHOD_NAMES, PASS_FAIL_METHODS, SUSPENDED_BELOW_EXACT, SufficientStatistics
 from .models import DEFAULT_MODEL, get_model
 from .models.gamma.fit import shape_from_log_ratio
 from .models.gamma.tail import log_density_term, tail_probability_standard
@@ -511,13 +511,12 @@ _EVALUATORS = {"pass-fail": _PassFail, "known-shape": _KnownShape, "fitted-shape
                "pass-fail-exact": _PassFailExact}
 
 
-
-
 def _evaluator(x, survivors, threshold, method, model=DEFAULT_MODEL):
     """The method's evaluator; the censored one when the log has a suspension the method must censor;
     for the Weibull and lognormal models the parametric methods' ``_ModelRule``."""
     name = get_model(model).name
-    plain = _ModelRule(name, method) if name != DEFAULT_MODEL and method != "pass-fail" else _EVALUATORS[method]
+    parametric = name != DEFAULT_MODEL and method not in PASS_FAIL_METHODS
+    plain = _ModelRule(name, method) if parametric else _EVALUATORS[method]
     if is_censored(x, survivors, threshold, method):
         return CensoredRule(plain, method, name)
     return plain

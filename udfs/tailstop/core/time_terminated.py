@@ -40,8 +40,8 @@ def check_test_time(test_time, threshold, method):
         return
     if not (test_time > 0):
         raise ValueError(f"test_time must be a positive number (got {test_time!r})")
-    if method == "pass-fail" and test_time < threshold:
-        raise ValueError(f"pass-fail cannot see past the test time: every unit still running at {test_time:g} "
+    if method in ("pass-fail", "pass-fail-exact") and test_time < threshold:
+        raise ValueError(f"{method} cannot see past the test time: every unit still running at {test_time:g} "
                          f"is stopped before the threshold {threshold:g}; run units to at least the threshold "
                          f"or use known-shape or fitted-shape")
 
@@ -56,7 +56,7 @@ def time_terminated_sigma2(method, threshold, shape, scale, test_time=None, mode
     """
     sigma2 = model_sigma2(method, threshold, shape, scale, model)  # validates the parameters
     check_test_time(test_time, threshold, method)
-    if test_time is None or not math.isfinite(test_time) or method == "pass-fail":
+    if test_time is None or not math.isfinite(test_time) or method in ("pass-fail", "pass-fail-exact"):
         return float(sigma2)
     lifetime = get_model(model)
     t, tau = threshold / scale, test_time / scale

@@ -11,7 +11,8 @@ from __future__ import annotations
 import math
 
 from ..core import accuracy as _accuracy
-from ..core.methods import METHOD_NAMES, pass_fail_sigma2_from_p
+from ..core import guaranteed
+from ..core.methods import METHOD_NAMES, PASS_FAIL_METHODS, pass_fail_sigma2_from_p
 from ..core.operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
 from ..core.operating.time_terminated import simulate_with_test_time
 from . import cells
@@ -116,7 +117,7 @@ def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method
     c = cells.positive(threshold, "threshold")
     a, s, model_name = clean_shape_and_scale(shape, scale, model)
     stop = clean_test_time(test_time, c, name)
-    if name == "pass-fail":
+    if name in PASS_FAIL_METHODS:
         _exact_limit(n_star, m)
         return operating_characteristics(c, a, s, d, level, m, name, model=model_name)
     count = _replications(replications, name, n_star, m, model_name, stop)
@@ -131,9 +132,31 @@ def _number_or_text(value):
     return value if math.isfinite(value) else "beyond n_max"
 
 
-def summary_table(result, model="gamma", test_time=None):
+def _beside(result, accuracy):
+    """Rows that put pass-fail and pass-fail-exact side by side (what the exact guarantee costs in units)."""
+    if result.method not in PASS_FAIL_METHODS or accuracy is None:
+        return []
+    tuned = guaranteed.tuning(accuracy, result.confidence, result.pilot)
+    rows = [
+        ["pass-fail-exact tuning factor", tuned.factor],
+        ["pass-fail-exact guaranteed from p", tuned.p_low],
+        ["pass-fail-exact guaranteed to p", 1.0 - tuned.p_low],
+        ["pass-fail-exact certified coverage >=", tuned.coverage_bound],
+        ["pass-fail-exact guarantee covers this p",
+         "yes" if tuned.p_low <= result.probability <= 1.0 - tuned.p_low else "no: p is outside the guaranteed range"],
+    ]
+    other = "pass-fail" if result.method == guaranteed.METHOD else guaranteed.METHOD
+    companion = pass_fail_exact(result.probability, accuracy, result.confidence, result.pilot, method=other)
+    for label, value, _ in companion.figures():
+        if label.startswith(("expected units", "sd of N", "N ")) or label == "coverage":
+            rows.append([f"{other}: {label}", _number_or_text(value)])
+    return rows
+
+
+def summary_table(result, model="gamma", test_time=None, accuracy=None):
     """The 2-column labelled table of PLAN_SUMMARY (a ``model`` row under a Weibull or lognormal guess,
-    a ``test time`` row when every unit is stopped at one)."""
+    a ``test time`` row when every unit is stopped at one); pass-fail and pass-fail-exact each show the
+    other beside them when ``accuracy`` is given."""
     rows = [["method", result.method]]
     if model != "gamma":
         rows.append(["model", model])
@@ -148,7 +171,7 @@ def summary_table(result, model="gamma", test_time=None):
         if error is not None:
             rows.append([f"{label}: MC std. error", _number_or_text(error)])
     rows.append(["nominal confidence", result.confidence])
-    return rows
+    return rows + _beside(result, accuracy)
 
 
 PLAN_ARGUMENTS = dict(
@@ -190,7 +213,7 @@ def PLAN_SUMMARY(threshold, shape, scale, accuracy, confidence, pilot, method=No
     result = plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method, replications, seed, model,
                              test_time)
     return summary_table(result, clean_model(model), None if cells.is_missing(test_time) else
-                         cells.positive(test_time, "test_time"))
+                         cells.positive(test_time, "test_time"), cells.accuracy(accuracy))
 
 
 @formula(returns="table", p_guess=HELP["p_guess"], accuracy=HELP["accuracy"], confidence=HELP["confidence"],
@@ -202,4 +225,4 @@ def PLAN_SUMMARY_FROM_P(p_guess, accuracy, confidence, pilot):
     n_star = float(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level))
     m = _pilot(pilot)
     _exact_limit(n_star, m)
-    return summary_table(pass_fail_exact(p, d, level, m))
+    return summary_table(pass_fail_exact(p, d, level, m), accuracy=d)
