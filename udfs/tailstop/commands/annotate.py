@@ -32,7 +32,7 @@ def add_arguments(parser):
     parser.add_argument("--accuracy", required=True, help="odds to be known within this factor d > 1, e.g. 1.5")
     parser.add_argument("--confidence", default="0.95", help="confidence level, e.g. 0.95 (default)")
     parser.add_argument("--pilot", required=True, help="units tested before the rule is first consulted (>= 2)")
-    parser.add_argument("--method", default="pass-fail", help="pass-fail (default), known-shape or fitted-shape")
+    parser.add_argument("--method", default="pass-fail", help="pass-fail (default), known-shape, fitted-shape or pass-fail-exact")
     parser.add_argument("--shape", help="the shape of the model, for known-shape")
     parser.add_argument("--model", help="lifetime model of known-shape and fitted-shape: gamma (default), "
                                         "weibull or lognormal")

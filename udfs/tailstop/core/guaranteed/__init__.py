@@ -2,7 +2,7 @@
 
 Same estimate and interval as pass-fail (p̂ = S/n, odds within [q̂/d, q̂·d]);
 the stopping boundary n >= c (z / log d)² σ̃² carries a tuning factor c
-found by exact computation (``tuning.tune``) so that the exact coverage at
+found by exact computation (``bisection.tune``) so that the exact coverage at
 the stop is at least the confidence for every p in [p_low, 1 - p_low],
 checked over whole intervals of p (``certify``), for the pilot and
 check_every as given. ``tuning`` here is the cached entry point.
@@ -18,7 +18,7 @@ import threading
 
 from . import cache
 from .lattice import stop_condition
-from .tuning import ALGORITHM, Tuning, base_boundary, tune
+from .bisection import ALGORITHM, Tuning, base_boundary, tune
 
 __all__ = ["METHOD", "Tuning", "tuning", "stop_condition", "clear_memory_cache"]
 

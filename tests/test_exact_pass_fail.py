@@ -1,0 +1,264 @@
+"""pass-fail-exact: a pass-fail rule whose exact coverage is at least the confidence for every p in its range.
+
+The checks of the guarantee use a forward propagation of P(n, S) written here
+from the rule as docs/method.md states it (n >= c (z / log d)² / (p̃ (1 - p̃)),
+p̃ = (S + ½)/(n + 1), 0 < S < n, at the check points) — not the lattice
+counts of ``core.guaranteed`` — and a seeded simulation of logs through the
+spreadsheet formulas themselves.
+"""
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from tailstop.core import guaranteed
+from tailstop.core.guaranteed import cache as tuning_cache
+from tailstop.core.guaranteed import certify, lattice
+from tailstop.core.guaranteed import bisection as tuning_module
+from tailstop.core.operating import pass_fail_exact
+from tailstop.sheet import (
+    ACCURACY_FOR_UNITS,
+    PLAN_SUMMARY,
+    STOP_DECISION,
+    STOP_DECISION_COLUMN,
+    TAIL_ODDS_BOUNDS,
+    TAIL_PROB_BOUNDS,
+    TWO_STAGE_UNITS,
+    UNITS_NEEDED_NOW,
+    UNITS_REQUIRED,
+)
+
+
+@pytest.fixture(autouse=True)
+def private_cache(tmp_path, monkeypatch):
+    """Every test tunes into its own cache folder and starts with an empty memory cache."""
+    monkeypatch.setenv("TAILSTOP_CACHE_DIR", str(tmp_path / "cache"))
+    guaranteed.clear_memory_cache()
+    yield
+    guaranteed.clear_memory_cache()
+
+
+def propagated_coverage(p, accuracy, confidence, pilot, check_every, factor, tolerance=1e-11):
+    """(coverage, E[N], P(not stopped)) at p by forward propagation of P(n, S), written from docs/method.md.
+
+    The states still running form a window of S; a run not stopped when the
+    running probability falls below ``tolerance`` counts as not covered.
+    """
+    z = stats.norm.ppf(0.5 + confidence / 2)
+    boundary = factor * (z / math.log(accuracy)) ** 2
+    q = p / (1 - p)
+    mass = stats.binom.pmf(np.arange(pilot + 1), pilot, p)
+    low = 0  # mass[i] is P(n, S = low + i)
+    n, covered, mean = pilot, 0.0, 0.0
+    while True:
+        s = low + np.arange(mass.size)
+        if n >= pilot and (n - pilot) % check_every == 0:
+            p_tilde = (s + 0.5) / (n + 1)
+            stop = (n * (p_tilde * (1 - p_tilde)) >= boundary) & (s > 0) & (s < n)
+            estimate = s[stop] / (n - s[stop])
+            inside = (estimate / accuracy <= q * (1 + 1e-12)) & (q <= estimate * accuracy * (1 + 1e-12))
+            covered += mass[stop][inside].sum()
+            mean += n * mass[stop].sum()
+            mass = np.where(stop, 0.0, mass)
+        nonzero = np.flatnonzero(mass > 1e-300)
+        if nonzero.size == 0 or mass.sum() < tolerance:
+            return covered, mean, mass.sum()
+        mass, low = mass[nonzero[0]: nonzero[-1] + 1], low + int(nonzero[0])
+        mass = np.concatenate([mass * (1 - p), [0.0]]) + np.concatenate([[0.0], mass * p])
+        n += 1
+
+
+def grid_in_range(p_low, count):
+    """p from p_low to 1 - p_low, evenly spaced in log-odds."""
+    x = np.linspace(math.log(p_low / (1 - p_low)), -math.log(p_low / (1 - p_low)), count)
+    return 1 / (1 + np.exp(-x))
+
+
+SETTINGS = [(3.0, 0.90, 2, 1), (2.0, 0.95, 5, 3)]
+
+
+@pytest.mark.parametrize("accuracy, confidence, pilot, check_every", SETTINGS)
+def test_exact_coverage_never_below_the_confidence(accuracy, confidence, pilot, check_every):
+    tuned = guaranteed.tuning(accuracy, confidence, pilot, check_every)
+    rng = np.random.default_rng(20261202)
+    inner = tuned.p_low * (1 + 1e-9)
+    points = np.concatenate([
+        grid_in_range(inner, 25),
+        rng.uniform(inner, 1 - inner, 8),
+        inner * np.exp(rng.uniform(0, math.log(20), 3)),          # near 0
+        1 - inner * np.exp(rng.uniform(0, math.log(20), 3)),      # near 1
+    ])
+    lowest = 1.0
+    for p in points:
+        coverage, _, _ = propagated_coverage(p, accuracy, confidence, pilot, check_every, tuned.factor)
+        lowest = min(lowest, coverage)
+        assert coverage >= confidence, f"p = {p:.6g}: coverage {coverage:.6f} < {confidence}"
+    # the certified bound is a lower bound of every coverage seen
+    assert tuned.coverage_bound <= lowest + 1e-9
+
+
+def test_pass_fail_itself_falls_short_where_the_exact_rule_does_not():
+    # check value: an independent dynamic program gave 0.83-0.84 for pass-fail at d = 3, 0.90, p = 0.01
+    coverage, _, _ = propagated_coverage(0.01, 3.0, 0.90, 2, 1, factor=1.0)
+    assert 0.83 <= coverage <= 0.84
+    assert not tuning_module.check(1.0, 3.0, 0.90, 2, 1, tuning_module.p_low_for(3.0, 0.90)).holds
+    tuned = guaranteed.tuning(3.0, 0.90, 2)
+    assert tuned.factor > 1
+    assert propagated_coverage(0.01, 3.0, 0.90, 2, 1, tuned.factor)[0] >= 0.90
+
+
+def test_lattice_counts_give_the_propagated_distribution():
+    # two ways to the same exact figures: first-passage path counts against P(n, S) propagation
+    accuracy, confidence, pilot, factor = 2.0, 0.95, 4, 1.2
+    boundary = factor * tuning_module.base_boundary(accuracy, confidence)
+    states = lattice.first_passage_counts(boundary, pilot, 2, *tuning_module.box_for(boundary, 0.01))
+    for p in (0.5, 0.2, 0.03, 0.011):
+        mass = states.mass(p)
+        coverage, mean, left = propagated_coverage(p, accuracy, confidence, pilot, 2, factor, tolerance=1e-14)
+        assert mass.sum() == pytest.approx(1.0, abs=1e-9)
+        assert float(np.dot(states.k + states.f, mass)) == pytest.approx(mean, rel=1e-9)
+        assert certify.coverage_at(states, p, accuracy) == pytest.approx(coverage, abs=1e-9)
+
+
+def test_interval_bound_is_below_the_coverage_inside_the_interval():
+    accuracy, confidence, pilot, factor = 3.0, 0.90, 2, 1.3
+    boundary = factor * tuning_module.base_boundary(accuracy, confidence)
+    states = lattice.first_passage_counts(boundary, pilot, 1, *tuning_module.box_for(boundary, 0.005))
+    rng = np.random.default_rng(5)
+    for _ in range(5):
+        a = float(np.exp(rng.uniform(math.log(0.02), math.log(0.5))))
+        b = a * float(np.exp(rng.uniform(0.001, 0.05)))
+        bound = certify.interval_bound(states, a, b, accuracy)
+        inside = np.linspace(a, b, 9)
+        assert bound <= min(propagated_coverage(p, accuracy, confidence, pilot, 1, factor)[0] for p in inside) + 1e-12
+
+
+def test_the_rule_treats_p_and_one_minus_p_alike():
+    n = np.arange(2, 400)[:, None]
+    k = np.arange(0, 400)[None, :]
+    n, k = np.broadcast_arrays(n, k)
+    valid = k <= n
+    forward = lattice.stop_condition(n, k, 7.3, 3, 2)
+    mirrored = lattice.stop_condition(n, n - k, 7.3, 3, 2)
+    assert np.array_equal(forward[valid], mirrored[valid])
+
+
+def test_simulated_logs_through_the_formulas_agree_with_the_exact_figures():
+    """Seeded runs of invented lifetimes through STOP_DECISION_COLUMN and TAIL_ODDS_BOUNDS."""
+    accuracy, confidence, pilot, threshold = 3.0, 0.90, 2, 1000.0
+    p = 0.08
+    scale = threshold / -math.log(p)   # exponential lifetimes: P(X > threshold) = p
+    exact = pass_fail_exact(p, accuracy, confidence, pilot, method="pass-fail-exact")
+    rng = np.random.default_rng(424242)
+    runs, units, covered = 400, [], 0
+    q = p / (1 - p)
+    for _ in range(runs):
+        log = np.round(rng.exponential(scale, 1200), 1) + 0.1
+        column = STOP_DECISION_COLUMN([[v] for v in log], threshold, accuracy, confidence, pilot, "pass-fail-exact")
+        decisions = [row[0] for row in column]
+        stop = decisions.index("STOP") + 1
+        low, high = TAIL_ODDS_BOUNDS([[v] for v in log[:stop]], threshold, accuracy, "pass-fail-exact")[0]
+        units.append(stop)
+        covered += low <= q <= high
+    units = np.array(units, float)
+    assert abs(units.mean() - exact.expected_units) < 4 * units.std() / math.sqrt(runs)
+    share = covered / runs
+    assert abs(share - exact.coverage) < 4 * math.sqrt(exact.coverage * (1 - exact.coverage) / runs)
+
+
+def test_formulas_take_the_method(tmp_path):
+    log = [[v] for v in (500, 1500, 700, 2100, 300, 1200, 800, 950, 1800, 400, 650, 1300)]
+    tuned = guaranteed.tuning(2.0, 0.9, 2)
+    assert STOP_DECISION(log, 1000, 2.0, 0.9, 2, "pass-fail-exact") in ("CONTINUE", "STOP", "PAST STOP")
+    low, high = TAIL_PROB_BOUNDS(log, 1000, 2.0, "pass-fail-exact")[0]
+    assert (low, high) == tuple(TAIL_PROB_BOUNDS(log, 1000, 2.0, "pass-fail")[0])  # same estimate and interval
+    needed = UNITS_NEEDED_NOW(log, 1000, 2.0, 0.9, "pass-fail-exact")
+    plain = UNITS_NEEDED_NOW(log, 1000, 2.0, 0.9, "pass-fail")
+    assert needed >= plain
+    # the tuned boundary: ceil(c (z/log d)² σ̃²) with S = 5 of n = 12 beyond
+    p_tilde = 5.5 / 13
+    assert needed == math.ceil(tuned.boundary / (p_tilde * (1 - p_tilde)) - 1e-9)
+    assert TWO_STAGE_UNITS(log, 1000, 2.0, 0.9, "pass-fail-exact") >= TWO_STAGE_UNITS(log, 1000, 2.0, 0.9, "pass-fail")
+    required = UNITS_REQUIRED(1000, 1, 1000 / math.log(2), 2.0, 0.9, "pass-fail-exact")   # p = 1/2
+    z = stats.norm.ppf(0.95)
+    assert required == math.ceil(tuned.factor * 4 * (z / math.log(2)) ** 2)
+    assert "no accuracy for a unit count" in ACCURACY_FOR_UNITS(100, 1000, 2, 600, 0.9, "pass-fail-exact")
+
+
+def test_a_survivor_past_the_threshold_counts_and_one_below_is_refused():
+    log = [[v] for v in (500, "1500+", 700, 2100, 300, 1200, 800, 950, 1800, 400, 650, 1300)]
+    beyond = [[v] for v in (500, 1500, 700, 2100, 300, 1200, 800, 950, 1800, 400, 650, 1300)]
+    assert STOP_DECISION_COLUMN(log, 1000, 3.0, 0.9, 2, "pass-fail-exact") == \
+        STOP_DECISION_COLUMN(beyond, 1000, 3.0, 0.9, 2, "pass-fail-exact")
+    below = [[v] for v in (500, "700+", 700, 2100, 300, 1200, 800, 950, 1800, 400, 650, 1300)]
+    text = STOP_DECISION(below, 1000, 3.0, 0.9, 2, "pass-fail-exact")
+    assert text.startswith("#TAILSTOP!") and "use pass-fail" in text
+    text = TAIL_PROB_BOUNDS(below, 1000, 3.0, "pass-fail-exact")
+    assert isinstance(text, str) and text.startswith("#TAILSTOP!") and "use pass-fail" in text
+
+
+def test_plan_summary_shows_both_rules_and_the_range():
+    table = dict((row[0], row[1]) for row in PLAN_SUMMARY(1000, 1, 1000 / -math.log(0.02), 3, 0.9, 2,
+                                                          "pass-fail-exact"))
+    tuned = guaranteed.tuning(3.0, 0.9, 2)
+    assert table["method"] == "pass-fail-exact"
+    assert table["coverage"] >= 0.9
+    assert table["pass-fail-exact guaranteed from p"] == tuned.p_low
+    assert table["pass-fail-exact guarantee covers this p"] == "yes"
+    plain = pass_fail_exact(0.02, 3.0, 0.9, 2)
+    assert table["pass-fail: expected units E[N]"] == pytest.approx(plain.expected_units, rel=1e-9)
+    assert table["pass-fail: coverage"] == pytest.approx(plain.coverage, rel=1e-9)
+    assert table["expected units E[N]"] > table["pass-fail: expected units E[N]"]
+
+
+# --------------------------------------------------------------------------- the cache
+
+
+def test_tuning_is_cached_on_disk_and_in_memory(monkeypatch):
+    first = guaranteed.tuning(3.0, 0.9, 2)
+    stored = json.loads(tuning_cache.cache_file().read_text())
+    assert len(stored) == 1
+    guaranteed.clear_memory_cache()
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("tuned again although the cache holds the result")
+
+    monkeypatch.setattr(guaranteed, "tune", refuse)
+    again = guaranteed.tuning(3.0, 0.9, 2)
+    assert again == first
+    assert guaranteed.tuning(3.0, 0.9, 2) is again  # from memory now
+
+
+@pytest.mark.parametrize("damage", ["value", "hash", "garbage"])
+def test_a_damaged_cache_is_recomputed(monkeypatch, damage):
+    first = guaranteed.tuning(3.0, 0.9, 2)
+    path = tuning_cache.cache_file()
+    if damage == "garbage":
+        path.write_text("{not json")
+    else:
+        content = json.loads(path.read_text())
+        entry = next(iter(content.values()))
+        if damage == "value":
+            entry["record"]["factor"] = 1.0
+        else:
+            entry["sha256"] = "0" * 64
+        path.write_text(json.dumps(content))
+    guaranteed.clear_memory_cache()
+    calls = []
+    original = guaranteed.tune
+
+    def counted(*args):
+        calls.append(args)
+        return original(*args)
+
+    monkeypatch.setattr(guaranteed, "tune", counted)
+    again = guaranteed.tuning(3.0, 0.9, 2)
+    assert len(calls) == 1
+    assert again.factor == first.factor
+    content = json.loads(path.read_text())
+    entry = next(iter(content.values()))
+    assert entry["record"]["factor"] == first.factor  # written again, intact
