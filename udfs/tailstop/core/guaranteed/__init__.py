@@ -7,7 +7,7 @@ the stop is at least the confidence for every p in [p_low, 1 - p_low],
 checked over whole intervals of p (``certify``), for the pilot and
 check_every as given. ``tuning`` here is the cached entry point.
 
-Reference: Chen, X. & Chen, J. (2013), exact group sequential methods for
+Reference: Chen & Chen (2013), exact group sequential methods for
 estimating a binomial proportion, J. Probab. Stat., Article 603297 (coverage
 tuning of the boundary, coverage bounded over intervals of p).
 """

@@ -20,7 +20,7 @@ found, or the halves get too narrow (a jump whose lower side is short).
 The rule is symmetric in k and f and the interval in log q̂ ± log d, so
 C(p) = C(1 - p): intervals of [p_low, ½] certify [p_low, 1 - p_low].
 
-Reference: Chen, X. & Chen, J. (2013)... see docs/method.md.
+Reference: Chen & Chen (2013), J. Probab. Stat., Article 603297; the argument in full: docs/method.md.
 """
 from __future__ import annotations
 
@@ -36,7 +36,7 @@ __all__ = ["Certificate", "coverage_at", "certify"]
 # log q̂ within this of a limit is treated as on it (never counted as covered for a whole interval)
 _TIE = 1e-11
 # relative allowance for rounding in the summed masses of a bound
-_ROUNDING = 1e-9
+_ROUNDING = 1e-8
 _FIRST_INTERVALS = 128
 _NARROWEST = 1e-9        # in log-odds: an interval this narrow that still falls short fails
 _MOST_INTERVALS = 60_000

@@ -27,8 +27,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import special
 
-__all__ = ["stop_condition", "StopStates", "first_passage_counts"]
+__all__ = ["stop_condition", "StopStates", "first_passage_counts", "first_stopping_level"]
 
 
 def stop_condition(n, k, boundary, pilot, check_every):
@@ -79,9 +80,15 @@ def first_passage_counts(boundary, pilot, check_every, f_max, k_max) -> StopStat
     Every path to a state of the box stays in the box, so each count is exact.
     """
     levels_k, levels_f, levels_w = [], [], []
-    inflow = np.full(f_max + 1, -np.inf)
-    inflow[0] = 0.0  # the empty path at (0, 0)
-    for k in range(k_max + 1):
+    first = first_stopping_level(boundary)
+    if first == 0:
+        inflow = np.full(f_max + 1, -np.inf)
+        inflow[0] = 0.0  # the empty path at (0, 0)
+    else:
+        # below the first level that can stop every path is alive: w(k - 1, f) = C(k - 1 + f, f)
+        f = np.arange(f_max + 1, dtype=float)
+        inflow = -np.log(f + first) - special.betaln(first, f + 1.0)
+    for k in range(first, k_max + 1):
         f = np.arange(inflow.size)
         stop = stop_condition(k + f, k, boundary, pilot, check_every)
         arrivals = _level_arrivals(inflow, np.flatnonzero(stop), check_every)
@@ -101,6 +108,16 @@ def first_passage_counts(boundary, pilot, check_every, f_max, k_max) -> StopStat
     log_odds = np.log(k) - np.log(f)
     order = np.argsort(log_odds, kind="stable")
     return StopStates(k[order], f[order], log_count[order], log_odds[order], int(f_max), int(k_max))
+
+
+def first_stopping_level(boundary):
+    """The smallest k at which the rule can stop: k + ½ > F (below it n (k + ½)(f + ½) < F (n + 1)² always).
+
+    n (f + ½) < (n + 1)², so k + ½ <= F makes the left side of the stop
+    condition smaller than its right side by a relative 1/(n + 1) at least,
+    far beyond rounding for any test length.
+    """
+    return max(1, int(math.floor(boundary - 0.5)) + 1)
 
 
 def _level_arrivals(inflow, stops, check_every):
