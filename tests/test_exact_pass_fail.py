@@ -1,8 +1,8 @@
 """pass-fail-exact: a pass-fail rule whose exact coverage is at least the confidence for every p in its range.
 
 The checks of the guarantee use a forward propagation of P(n, S) written here
-from the rule as docs/method.md states it (n >= c (z / log d)² / (p̃ (1 - p̃)),
-p̃ = (S + ½)/(n + 1), 0 < S < n, at the check points) — not the lattice
+from the rule as docs/method.md states it (n >= c (z / log d)² / (p̂ (1 - p̂)),
+p̂ = S/n, 0 < S < n, at the check points) — not the lattice
 counts of ``core.guaranteed`` — and a seeded simulation of logs through the
 spreadsheet formulas themselves.
 """
@@ -57,8 +57,9 @@ def propagated_coverage(p, accuracy, confidence, pilot, check_every, factor, tol
     while True:
         s = low + np.arange(mass.size)
         if n >= pilot and (n - pilot) % check_every == 0:
-            p_tilde = (s + 0.5) / (n + 1)
-            stop = (n * (p_tilde * (1 - p_tilde)) >= boundary) & (s > 0) & (s < n)
+            share = s / n
+            with np.errstate(divide="ignore"):
+                stop = (n >= boundary / (share * (1 - share))) & (s > 0) & (s < n)
             estimate = s[stop] / (n - s[stop])
             inside = (estimate / accuracy <= q * (1 + 1e-12)) & (q <= estimate * accuracy * (1 + 1e-12))
             covered += mass[stop][inside].sum()
@@ -101,14 +102,21 @@ def test_exact_coverage_never_below_the_confidence(accuracy, confidence, pilot, 
     assert tuned.coverage_bound <= lowest + 1e-9
 
 
-def test_pass_fail_itself_falls_short_where_the_exact_rule_does_not():
-    # check value: an independent dynamic program gave 0.83-0.84 for pass-fail at d = 3, 0.90, p = 0.01
-    coverage, _, _ = propagated_coverage(0.01, 3.0, 0.90, 2, 1, factor=1.0)
-    assert 0.83 <= coverage <= 0.84
-    assert not tuning_module.check(1.0, 3.0, 0.90, 2, 1, tuning_module.p_low_for(3.0, 0.90)).holds
+def test_the_untuned_boundary_is_pass_fails_and_falls_short():
+    # c = 1 is pass-fail's own rule: the propagation here agrees with the planning figures of pass-fail
+    for p in (0.4, 0.05, 0.01):
+        coverage, mean, _ = propagated_coverage(p, 3.0, 0.90, 2, 1, factor=1.0, tolerance=1e-13)
+        plain = pass_fail_exact(p, 3.0, 0.90, 2)
+        assert coverage == pytest.approx(plain.coverage, abs=1e-9)
+        assert mean == pytest.approx(plain.expected_units, rel=1e-9)
+    # ... and its coverage is below 0.90 somewhere: the check finds a p, and the propagation confirms it
+    found = tuning_module.check(1.0, 3.0, 0.90, 2, 1, tuning_module.p_low_for(3.0, 0.90))
+    assert not found.holds and found.reason == "point below"
+    witness = found.where[0]
+    assert propagated_coverage(witness, 3.0, 0.90, 2, 1, factor=1.0)[0] < 0.90
     tuned = guaranteed.tuning(3.0, 0.90, 2)
     assert tuned.factor > 1
-    assert propagated_coverage(0.01, 3.0, 0.90, 2, 1, tuned.factor)[0] >= 0.90
+    assert propagated_coverage(witness, 3.0, 0.90, 2, 1, tuned.factor)[0] >= 0.90
 
 
 def test_lattice_counts_give_the_propagated_distribution():
@@ -179,9 +187,8 @@ def test_formulas_take_the_method(tmp_path):
     needed = UNITS_NEEDED_NOW(log, 1000, 2.0, 0.9, "pass-fail-exact")
     plain = UNITS_NEEDED_NOW(log, 1000, 2.0, 0.9, "pass-fail")
     assert needed >= plain
-    # the tuned boundary: ceil(c (z/log d)² σ̃²) with S = 5 of n = 12 beyond
-    p_tilde = 5.5 / 13
-    assert needed == math.ceil(tuned.boundary / (p_tilde * (1 - p_tilde)) - 1e-9)
+    # the tuned boundary: ceil(c (z/log d)² σ̂²) with S = 5 of n = 12 beyond, σ̂² = n²/(S (n - S))
+    assert needed == math.ceil(tuned.boundary * 144 / 35 - 1e-9)
     assert TWO_STAGE_UNITS(log, 1000, 2.0, 0.9, "pass-fail-exact") >= TWO_STAGE_UNITS(log, 1000, 2.0, 0.9, "pass-fail")
     required = UNITS_REQUIRED(1000, 1, 1000 / math.log(2), 2.0, 0.9, "pass-fail-exact")   # p = 1/2
     z = stats.norm.ppf(0.95)
@@ -209,7 +216,7 @@ def test_plan_summary_shows_both_rules_and_the_range():
     assert table["coverage"] >= 0.9
     assert table["pass-fail-exact guaranteed from p"] == tuned.p_low
     assert table["pass-fail-exact guarantee covers this p"] == "yes"
-    plain = pass_fail_exact(0.02, 3.0, 0.9, 2)
+    plain = pass_fail_exact(table["true probability p"], 3.0, 0.9, 2)
     assert table["pass-fail: expected units E[N]"] == pytest.approx(plain.expected_units, rel=1e-9)
     assert table["pass-fail: coverage"] == pytest.approx(plain.coverage, rel=1e-9)
     assert table["expected units E[N]"] > table["pass-fail: expected units E[N]"]
@@ -262,3 +269,19 @@ def test_a_damaged_cache_is_recomputed(monkeypatch, damage):
     content = json.loads(path.read_text())
     entry = next(iter(content.values()))
     assert entry["record"]["factor"] == first.factor  # written again, intact
+
+
+@pytest.mark.parametrize("accuracy, confidence", [(3.0, 0.9), (5.0, 0.9)])
+def test_the_table_in_the_method_page_is_what_the_tuning_gives(accuracy, confidence):
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[1] / "docs" / "method.md").read_text(encoding="utf-8")
+    row = next(line for line in text.splitlines() if line.startswith(f"| {accuracy:g} | {confidence:g} | "))
+    cells = [cell.strip() for cell in row.strip("|").split("|")]
+    tuned = guaranteed.tuning(accuracy, confidence, 2)
+    assert f"{tuned.factor:.3f}" == cells[2]
+    assert f"{tuned.p_low:.2g}" == cells[3]
+    assert f"{tuned.coverage_bound:.4f}" == cells[4]
+    assert float(cells[4]) >= confidence
+    # the pass-fail column: its lowest coverage is below the confidence (propagation written here, at a p near it)
+    assert float(cells[6]) < confidence

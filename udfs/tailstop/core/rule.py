@@ -17,8 +17,8 @@ Degenerate prefixes never stop:
   exist (σ̂² is NaN) and the rule continues;
 * any σ̂² that is NaN or infinite means "continue".
 
-pass-fail-exact uses the same σ̃² with its own tuned boundary
-n >= c (z / log d)² σ̃² (``guaranteed.stop_condition``, c from
+pass-fail-exact uses the same σ̂² with its own tuned boundary
+n >= c (z / log d)² σ̂² (``guaranteed.stop_condition``, c from
 ``guaranteed.tuning``), and the same no-stop while S = 0 or S = n.
 
 References: Chow, Y. S. & Robbins, H. (1965), Ann. Math. Statist. 36,
@@ -31,7 +31,7 @@ import numpy as np
 
 from . import guaranteed
 from .accuracy import critical_value
-from .methods import PASS_FAIL_METHODS, estimate_from_statistics
+from .methods import estimate_from_statistics
 from .models import DEFAULT_MODEL
 
 __all__ = ["MIN_PILOT", "rule_sigma2", "boundary_factor", "is_check_point", "stops"]
@@ -59,7 +59,7 @@ def rule_sigma2(statistics, threshold, method, shape=None, model=DEFAULT_MODEL):
     if method == "pass-fail":
         return pass_fail_rule_sigma2(statistics.n, statistics.exceedances)
     if method == "pass-fail-exact":
-        return regularized_pass_fail_sigma2(statistics.n, statistics.exceedances)
+        return pass_fail_rule_sigma2(statistics.n, statistics.exceedances)
     with np.errstate(all="ignore"):
         return np.asarray(estimate_from_statistics(statistics, threshold, method, shape, model).sigma2, dtype=float)
 

@@ -1,7 +1,7 @@
 """pass-fail-exact: the pass-fail rule with a tuned boundary whose coverage is guaranteed, not asymptotic.
 
 Same estimate and interval as pass-fail (p̂ = S/n, odds within [q̂/d, q̂·d]);
-the stopping boundary n >= c (z / log d)² σ̃² carries a tuning factor c
+the stopping boundary n >= c (z / log d)² σ̂² carries a tuning factor c
 found by exact computation (``bisection.tune``) so that the exact coverage at
 the stop is at least the confidence for every p in [p_low, 1 - p_low],
 checked over whole intervals of p (``certify``), for the pilot and

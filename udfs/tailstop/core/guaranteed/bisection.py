@@ -1,7 +1,7 @@
 """Tuning of the pass-fail-exact boundary: the smallest factor whose coverage is certified.
 
-The pass-fail rule stops when n >= B σ̃², B = (z / log d)². pass-fail-exact
-stops when n >= c·B·σ̃² (``lattice.stop_condition``) with the tuning factor
+The pass-fail rule stops when n >= B σ̂², B = (z / log d)². pass-fail-exact
+stops when n >= c·B·σ̂² (``lattice.stop_condition``) with the tuning factor
 c >= 1 chosen by bisection: the smallest c (to 1 %) for which
 ``certify.certify`` proves that the exact coverage of [q̂/d, q̂·d] at the
 stop is at least the confidence for every p in [p_low, 1 - p_low].
@@ -24,7 +24,7 @@ from .lattice import first_passage_counts
 __all__ = ["Tuning", "tune", "p_low_for", "box_for", "UNIT_BUDGET", "P_FLOOR", "ALGORITHM"]
 
 # Changing anything that moves a tuning result must change this (it keys the disk cache).
-ALGORITHM = "pass-fail-exact/2"
+ALGORITHM = "pass-fail-exact/3"
 UNIT_BUDGET = 40_000
 P_FLOOR = 1e-6
 _RESOLUTION = 0.01   # relative width of the final bisection bracket of c
@@ -41,7 +41,7 @@ class Tuning:
     factor : float
         c, the tuning factor on the pass-fail boundary (c = 1: pass-fail's own).
     boundary : float
-        F = c (z / log d)²: stop at a check point once n >= F σ̃².
+        F = c (z / log d)²: stop at a check point once n >= F σ̂².
     p_low : float
         The coverage is guaranteed for p in [p_low, 1 - p_low].
     coverage_bound : float

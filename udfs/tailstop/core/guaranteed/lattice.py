@@ -6,12 +6,13 @@ step, right (k + 1) with probability p, up (f + 1) with probability 1 - p.
 The rule stops at the first check point n (n >= pilot, n - pilot a multiple
 of ``check_every``) with k >= 1, f >= 1 and
 
-    n · (k + ½)(f + ½) >= F · (n + 1)²,
+    k · f >= F · n,
 
-that is n >= F σ̃² with σ̃² = 1/(p̃(1 - p̃)), p̃ = (k + ½)/(n + 1), F the
-tuned boundary. The left side over n² grows with f for fixed k (and with k
-for fixed f), so apart from the check points the stop set is an upper set of
-the lattice: what stops at (k, f) stops at every (k', f') >= (k, f).
+that is n >= F σ̂² with σ̂² = 1/(p̂(1 - p̂)), p̂ = k/n, F the tuned
+boundary; equivalently 1/k + 1/f <= 1/F. That grows easier with f for fixed
+k (and with k for fixed f), so apart from the check points the stop set is
+an upper set of the lattice: what stops at (k, f) stops at every
+(k', f') >= (k, f).
 
 P(stop at (k, f)) = w(k, f) p^k (1 - p)^f, with w(k, f) the number of paths
 from (0, 0) that reach (k, f) without passing a stop state before. The
@@ -35,14 +36,14 @@ __all__ = ["stop_condition", "StopStates", "first_passage_counts", "first_stoppi
 def stop_condition(n, k, boundary, pilot, check_every):
     """Does the pass-fail-exact rule stop with k of n units beyond the threshold (vectorized)?
 
-    The product (k + ½)(f + ½) is symmetric in k and f, so the rule treats
+    k · f >= F · n; the product is symmetric in k and f, so the rule treats
     p and 1 - p alike bit for bit.
     """
     n = np.asarray(n, dtype=float)
     k = np.asarray(k, dtype=float)
     f = n - k
     with np.errstate(invalid="ignore"):
-        enough = n * ((k + 0.5) * (f + 0.5)) >= boundary * (n + 1.0) ** 2
+        enough = k * f >= boundary * n
     consulted = (n >= pilot) & ((n - pilot) % check_every == 0)
     return enough & consulted & (k > 0) & (f > 0)
 
@@ -111,13 +112,12 @@ def first_passage_counts(boundary, pilot, check_every, f_max, k_max) -> StopStat
 
 
 def first_stopping_level(boundary):
-    """The smallest k at which the rule can stop: k + ½ > F (below it n (k + ½)(f + ½) < F (n + 1)² always).
+    """The smallest k at which the rule can stop: k > F (for k <= F, k f < F (k + f) for every f).
 
-    n (f + ½) < (n + 1)², so k + ½ <= F makes the left side of the stop
-    condition smaller than its right side by a relative 1/(n + 1) at least,
-    far beyond rounding for any test length.
+    k f - F (k + f) = f (k - F) - F k <= -F k when k <= F: the two sides
+    differ by F at least, far beyond rounding for any test length.
     """
-    return max(1, int(math.floor(boundary - 0.5)) + 1)
+    return max(1, int(math.floor(boundary)) + 1)
 
 
 def _level_arrivals(inflow, stops, check_every):
