@@ -525,49 +525,69 @@ def _evaluator(x, survivors, threshold, method, model=DEFAULT_MODEL):
 class _ModelRule:
     """σ̂² of every prefix from the model's running statistics (Weibull, lognormal).
 
-    The statistics of the first L units are computed once for L = 4,096,
-    then 65,536, then the whole log, as the check points reach them: a log
-    that stops early costs little, one that never stops costs about one
-    pass (for the Weibull fitted shape, ``weibull.running_fit``).
+    For both models σ² depends on the prefix only through one score (Weibull
+    w = β̂ ln(c/η̂), lognormal z = ln(c/median)/σ̂; ``LifetimeModel.score``),
+    so blocks of _BLOCK check points are first ruled out by the model's floor
+    of σ² over the block's range of scores (``LifetimeModel.sigma2_floor``),
+    and σ² itself is computed only in the blocks left, with the same margin as
+    the gamma screens. The scores of the first L units are computed once for
+    L = 4,096, then 65,536, then the whole log, as the check points reach
+    them: a log that stops early costs little, one that never stops costs
+    about one pass (for the Weibull fitted shape, ``weibull.running_fit``).
     """
 
     _LIMITS = (1 << 12, 1 << 16)
 
     def __init__(self, model, method):
-        self.model, self.method = model, method
-        self.limit, self.sigma2 = 0, np.empty(0)
+        self.model, self.method = get_model(model), method
+        self.limit, self.scores = 0, np.empty(0)
 
     def running_sums(self, x, threshold, survivors):
         return x
 
-    def _sigma2_up_to(self, x, last, threshold, shape):
+    def _scores_up_to(self, x, last, threshold, shape):
         if last > self.limit:
             limit = next((size for size in self._LIMITS if size >= last), x.size)
             limit = min(x.size, max(limit, last))
-            self.limit, self.sigma2 = limit, self._prefix_sigma2(x[:limit], threshold, shape)
-        return self.sigma2
+            self.limit, self.scores = limit, self._prefix_scores(x[:limit], threshold, shape)
+        return self.scores
 
-    def _prefix_sigma2(self, x, threshold, shape):
-        """σ̂² of every prefix as ``methods`` computes it, from the model's statistics only."""
-        model = get_model(self.model)
+    def _prefix_scores(self, x, threshold, shape):
+        """The score of every prefix, from the model's statistics as ``methods`` computes them (NaN: no fit)."""
+        model = self.model
         statistics = SufficientStatistics(
             n=np.arange(1, x.size + 1), sum_x=None, log_ratio=None, exceedances=None,
             model_statistics=model.statistics(x, self.method, shape, running=True))
         with np.errstate(all="ignore"):
             if self.method == "known-shape":
-                return model.sigma2_known_shape(shape, threshold / model.scale_for_shape(statistics, shape))
+                return model.score(shape, threshold / model.scale_for_shape(statistics, shape))
             fitted = model.fitted_shape(statistics)
             valid = np.isfinite(fitted)
             safe = np.where(valid, fitted, 1.0)
-            sigma2 = model.sigma2_fitted_shape(safe, threshold / model.fitted_scale(statistics, safe))
-        return np.where(valid, sigma2, np.nan)
+            scores = model.score(safe, threshold / model.fitted_scale(statistics, safe))
+        return np.where(valid, scores, np.nan)
+
+    def _sigma2(self, scores):
+        with np.errstate(all="ignore"):
+            return self.model.sigma2_of_score[self.method](scores)
 
     def stops(self, x, n, factor, threshold, shape):
-        return _enough(n, factor, self._sigma2_up_to(x, int(n[-1]), threshold, shape)[n - 1])
+        scores = self._scores_up_to(x, int(n[-1]), threshold, shape)[n - 1]
+        blocks = -(-n.size // _BLOCK)
+        pad = blocks * _BLOCK - n.size
+        grid = np.pad(scores, (0, pad), mode="edge").reshape(blocks, _BLOCK)
+        n_last = np.pad(n, (0, pad), mode="edge").reshape(blocks, _BLOCK)[:, -1]
+        with np.errstate(all="ignore"):
+            floor = self.model.sigma2_floor(self.method, np.fmin.reduce(grid, axis=1), np.fmax.reduce(grid, axis=1))
+        ruled_out = np.repeat(_ruled_out(n_last, factor, floor), _BLOCK)[: n.size]
+        hits = np.zeros(n.size, dtype=bool)
+        undecided = np.flatnonzero(~ruled_out)
+        if undecided.size:
+            hits[undecided] = _enough(n[undecided], factor, self._sigma2(scores[undecided]))
+        return hits
 
     def current_sigma2(self, x, n, threshold, shape):
-        sigma2 = float(self._sigma2_up_to(x, n, threshold, shape)[n - 1])
+        sigma2 = float(self._sigma2(self._scores_up_to(x, n, threshold, shape)[n - 1]))
         if not np.isfinite(sigma2):
-            raise ValueError(f"all lifetimes are equal: the {get_model(self.model).title} shape cannot be "
-                             "estimated yet")
+            raise ValueError(f"all lifetimes are equal: the {self.model.title} shape cannot be estimated yet")
         return sigma2

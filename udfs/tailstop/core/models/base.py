@@ -52,6 +52,11 @@ class LifetimeModel:
         Σx, Σlog x and the exceedances (None: nothing more).
     log_pdf, log_sf : callable
         ``(x, shape, scale) -> log f(x), log P(X > x)``, unchecked, vectorized.
+    score, sigma2_of_score, sigma2_floor : callable, dict, callable or None
+        Where σ² of both parametric methods depends on (shape, t) only through one number
+        ``score(shape, t)`` (Weibull w = β ln t, lognormal z = ln t / σ): σ² =
+        ``sigma2_of_score[method](score)``, and ``sigma2_floor(method, low, high)`` is a lower
+        bound of σ² over a range of scores (the decision column's screen).
     """
 
     name: str
@@ -72,6 +77,9 @@ class LifetimeModel:
     statistics: Callable | None = None
     log_pdf: Callable | None = None
     log_sf: Callable | None = None
+    score: Callable | None = None
+    sigma2_of_score: dict | None = None
+    sigma2_floor: Callable | None = None
 
 
 @dataclass(frozen=True)

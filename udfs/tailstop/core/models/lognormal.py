@@ -111,6 +111,20 @@ def sigma2_fitted_shape(shape, t):
     return sigma2_fitted_shape_z(_score_standard(shape, t))
 
 
+def score(shape, t):
+    """The one number σ² depends on: z = ln t / σ (t = c / median)."""
+    return _score_standard(shape, t)
+
+
+SIGMA2_OF_SCORE = {"known-shape": sigma2_known_shape_z, "fitted-shape": sigma2_fitted_shape_z}
+
+
+def sigma2_floor(method, low, high):
+    """A lower bound of σ² over every score z in [low, high]: both h² and 1 + z²/2 grow with |z|."""
+    nearest = np.clip(0.0, low, high)
+    return SIGMA2_OF_SCORE[method](nearest)
+
+
 def ml_scale(observations, shape=None):
     """The ML median e^{mean(log x)} (it does not depend on σ)."""
     x = check_lifetimes(observations, TITLE)
@@ -131,10 +145,13 @@ def fit(observations) -> ModelFit:
 
 @dataclass(frozen=True)
 class LognormalStatistics:
-    """mean(log x) and the ML standard deviation of log x (divisor n), of a sample or of every prefix."""
+    """mean(log x) and the ML standard deviation of log x (divisor n), of a sample or of every prefix.
+
+    ``sd_log`` is None for the running statistics of known-shape (which needs the median only).
+    """
 
     mean_log: np.ndarray
-    sd_log: np.ndarray
+    sd_log: np.ndarray | None
 
 
 def statistics(observations, method=None, shape=None, *, running=False) -> LognormalStatistics:
@@ -152,8 +169,11 @@ def statistics(observations, method=None, shape=None, *, running=False) -> Logno
         centred = log_x - origin
         count = np.arange(1, log_x.shape[-1] + 1)
         mean_centred = np.cumsum(centred, axis=-1) / count
+        mean = mean_centred + origin
+        if method == "known-shape":  # the median is all known-shape needs
+            return LognormalStatistics(mean, None)
         variance = np.maximum(np.cumsum(centred * centred, axis=-1) / count - mean_centred ** 2, 0.0)
-        mean, sd = mean_centred + origin, np.sqrt(variance)
+        sd = np.sqrt(variance)
     equal = ~(sd > 1e-12 * np.maximum(1.0, np.abs(mean)))
     return LognormalStatistics(mean, np.where(equal, np.nan, sd))
 
@@ -213,4 +233,7 @@ MODEL = LifetimeModel(
     statistics=statistics,
     log_pdf=log_pdf,
     log_sf=log_sf,
+    score=score,
+    sigma2_of_score=SIGMA2_OF_SCORE,
+    sigma2_floor=sigma2_floor,
 )

@@ -140,6 +140,28 @@ def sigma2_fitted_shape(shape, t):
     return sigma2_fitted_shape_w(_log_hazard_standard(shape, t))
 
 
+def score(shape, t):
+    """The one number σ² depends on: w = β ln t (t = c/η)."""
+    return _log_hazard_standard(shape, t)
+
+
+SIGMA2_OF_SCORE = {"known-shape": sigma2_known_shape_w, "fitted-shape": sigma2_fitted_shape_w}
+
+
+def sigma2_floor(method, low, high):
+    """A lower bound of σ² over every score w in [low, high].
+
+    u/(1-p) = u/(1 - e^{-u}) increases with w, and the fitted-shape factor
+    1 + 6 (w - (1-γ))²/π² is at least its value at the point of [low, high]
+    nearest 1 - γ; the product of the two minima bounds the product.
+    """
+    known = sigma2_known_shape_w(low)
+    if method == "known-shape":
+        return known
+    nearest = np.clip(1.0 - EULER_GAMMA, low, high)
+    return known * (1.0 + 6.0 * (nearest - (1.0 - EULER_GAMMA)) ** 2 / math.pi ** 2)
+
+
 # --------------------------------------------------------------------------- maximum likelihood
 
 
@@ -479,4 +501,7 @@ MODEL = LifetimeModel(
     statistics=statistics,
     log_pdf=log_pdf,
     log_sf=log_sf,
+    score=score,
+    sigma2_of_score=SIGMA2_OF_SCORE,
+    sigma2_floor=sigma2_floor,
 )
