@@ -52,6 +52,13 @@ def baseline(x, factor):
     return int(np.argmax(n >= factor * (np.cumsum(x) / n)))
 
 
+def target_text(method, seconds, ratio):
+    """Whether a decision column met its target: fitted-shape under 3 s, the others within 10x of the baseline."""
+    if method == "fitted-shape":
+        return f"< 3 s: {'met' if seconds < 3.0 else 'NOT MET'}"
+    return f"<= 10x: {'met' if ratio <= 10.0 else 'NOT MET'}"
+
+
 def accuracy_for(method, units, threshold=THRESHOLD):
     """The accuracy factor whose fixed-size plan, at the true parameters, is ``units`` units."""
     sigma2 = float(model_sigma2(method, threshold, SHAPE, SCALE))
@@ -85,10 +92,7 @@ def main():
             seconds, column = best_time(
                 lambda: decision_column(x, threshold, accuracy, CONFIDENCE, PILOT, method, shape), repeat)
             ratio = seconds / reference
-            if method == "fitted-shape":
-                target = f"< 3 s: {'met' if seconds < 3.0 else 'NOT MET'}"
-            else:
-                target = f"<= 10x: {'met' if ratio <= 10.0 else 'NOT MET'}"
+            target = target_text(method, seconds, ratio)
             stop = f"{column.stop_units:,}" if column.stopped else "-"
             print(f"{method:13s} {case:12s} {stop:>10s} {seconds * 1e3:7.1f} ms {ratio:25.1f}  {target}")
 
