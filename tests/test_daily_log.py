@@ -263,3 +263,58 @@ def test_a_recalculated_live_log_shows_its_values_in_libreoffice(tmp_path, soffi
     written = openpyxl.load_workbook(computed.path, data_only=True)[SHEET]
     for row in range(FIRST_ROW, result.log.last_row + 1):
         assert (shown[SHEET][f"E{row}"].value or None) == (written[f"E{row}"].value or None), row
+
+
+# --------------------------------------------------------------------------- run again on a growing log
+
+
+def tool_marks(path):
+    """Every cell reading the decision header or the block's title, and the conditional formats of the sheet."""
+    from tailstop.workbooks.log_layout import BLOCK_TITLE
+
+    sheet = openpyxl.load_workbook(path)[SHEET]
+    marks = sorted(cell.coordinate for row in sheet.iter_rows() for cell in row
+                   if cell.value in (DECISION_HEADER, BLOCK_TITLE))
+    return marks, [str(entry.sqref) for entry in sheet.conditional_formatting]
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_running_again_on_an_unchanged_log_changes_no_cell(tmp_path, streaming, live):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    once = all_cells(path), tool_marks(path)
+    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    assert (all_cells(path), tool_marks(path)) == once
+    assert once[1] == (["E3", "I1"], ["E4:E65"])  # one decision column, one block, one STOP highlight
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_rows_added_since_the_last_run_get_their_decisions(tmp_path, streaming, live):
+    hours = bearing_hours(90)
+    path = bearing_log(tmp_path / "bearing.xlsx", hours[:40], average=False)
+    first = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    # a week later: fifty more units typed below, and a note of the user's beside the block
+    book = openpyxl.load_workbook(path)
+    sheet = book[SHEET]
+    rows = log_rows(hours)
+    for index in range(40, 90):
+        sheet.cell(rows[index], 1, f"SN-{1000 + index}")
+        sheet.cell(rows[index], 3, hours[index])
+    sheet["L2"] = "checked by R. Ortiz"
+    book.save(path)
+    before = all_cells(path)
+    second = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    assert (second.decision_column, second.block.split(":")[0]) == (first.decision_column, "I1")
+    assert tool_marks(path) == (["E3", "I1"], [f"E4:E{rows[-1]}"])
+    shown = openpyxl.load_workbook(path, data_only=True)[SHEET]
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
+    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    assert [shown.cell(row, 5).value for row in rows] == expected
+    block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
+    assert block["Units used, N"] == stop
+    # everything that is not the tool's own is as the user left it
+    after = all_cells(path)
+    for coordinate, content in before[SHEET].items():
+        if openpyxl.utils.cell.coordinate_from_string(coordinate)[0] not in ("E", "I", "J"):
+            assert after[SHEET][coordinate] == content, coordinate
+    assert after["Rig notes"] == before["Rig notes"]

@@ -51,6 +51,7 @@ from .annotation import (
     AnnotateResult,
     check_log_column,
     column_number_of,
+    earlier_run,
     default_output,
     first_log_row,
     place_columns,
@@ -100,6 +101,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
         Default: when the log's sheet is long (``STREAM_FROM_BYTES``) and its
         markup allows it; the openpyxl path otherwise. True insists
         (``AnnotateRefused`` if the markup does not allow it); False never streams.
+        A sheet annotated before always goes through openpyxl, which replaces the earlier run's cells.
     force : bool
         With ``in_place``: replace the log although a spreadsheet program's lock file says it is open.
     header_row : int, optional
@@ -125,7 +127,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
                                                          in_place=in_place, backup=backup, live=live,
                                                          header_row=header_row, into=into)
             except annotate_stream.NotStreamable as reason:
-                if streaming:
+                if streaming and not isinstance(reason, annotate_stream.AnnotatedBefore):
                     raise AnnotateRefused(f"{source.name} cannot be edited as a stream: {reason}") from None
     book = open_workbook_safely(source, allow_lossy=allow_lossy)
     losses = [str(loss) for loss in book.tailstop_report.losses]
@@ -135,7 +137,10 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     analysis = analyse_log(log, values, plan)
     before = cell_check.snapshot(book)
     cached = dict(before.rounded)  # numbers openpyxl would round are stored exactly
-    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached, into)
+    earlier = _clear_earlier(worksheet, log)
+    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached,
+                                                  into if into is not None or earlier.decision_column is None
+                                                  else earlier.decision_column, earlier)
     checked = before.cell_count
     expected = cell_check.expected_after(before, {worksheet.title: added}, in_place=True)
     data = _package_bytes(book, cached)
@@ -147,7 +152,30 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
                           checked, len(before.cells), losses, live, header=header)
 
 
-def _add(worksheet, log, values, analysis, live, cached, into):
+def _clear_earlier(worksheet, log):
+    """Take an earlier run's cells and STOP highlight off the sheet, to be written again for the log as it is now."""
+    stored = worksheet._cells
+    earlier = earlier_run({key: cell._value for key, cell in stored.items()}, log)
+    for key in earlier.cells:
+        del stored[key]
+    if earlier.decision_column is not None:
+        _drop_highlight(worksheet, earlier.decision_column)
+    return earlier
+
+
+def _drop_highlight(worksheet, column):
+    """Remove the conditional formats that highlight STOP in ``column`` and nowhere else."""
+    formats = worksheet.conditional_formatting
+    for entry in list(formats._cf_rules):
+        ranges = list(entry.sqref.ranges)
+        rules = formats._cf_rules[entry]
+        if ranges and all(part.min_col == part.max_col == column for part in ranges) and rules and all(
+                rule.type == "cellIs" and rule.operator == "equal" and list(rule.formula) == ['"STOP"']
+                for rule in rules):
+            del formats._cf_rules[entry]
+
+
+def _add(worksheet, log, values, analysis, live, cached, into, earlier):
     """Write the decision column next to the log and the block beside it, over no existing cell.
 
     Returns
@@ -155,7 +183,8 @@ def _add(worksheet, log, values, analysis, live, cached, into):
     (decision column, BlockLayout, {row: markup to append}, {cell key: canonical content of every added cell})
     """
     occupancy = Occupancy.from_keys(worksheet._cells, [ranged.bounds for ranged in worksheet.merged_cells.ranges])
-    decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into)
+    decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into,
+                                                          block_at=earlier.label_column)
     write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
                          source="values computed by tailstop annotate")
     # decision cells can be appended to the end of openpyxl's row markup only where nothing stands to their right
@@ -166,7 +195,8 @@ def _add(worksheet, log, values, analysis, live, cached, into):
     set_width(worksheet, decision_column, 18)
     set_width(worksheet, label_column, 44)
     set_width(worksheet, label_column + 1, 24)
-    added = _added_cells(worksheet, log, decision_column, layout, cached)
+    added = {cell_check.cell_key(row, column): None for row, column in earlier.cells}  # gone unless written again
+    added.update(_added_cells(worksheet, log, decision_column, layout, cached))
     added.update({cell_check.cell_key(row, decision_column): content for row, (_, content) in markup.items()})
     return decision_column, layout, {row: cell for row, (cell, _) in markup.items()}, added
 

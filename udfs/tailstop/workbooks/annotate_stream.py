@@ -35,8 +35,8 @@ from openpyxl.xml.functions import tostring
 
 from . import cell_check
 from . import sheet_stream as ss
-from .annotation import (AnnotateRefused, AnnotateResult, check_log_column, column_number_of, first_log_row,
-                         place_columns)
+from .annotation import (AnnotateRefused, AnnotateResult, check_log_column, column_number_of, earlier_run,
+                         first_log_row, place_columns)
 from .log_layout import (
     HEADER_SEARCH_ROWS,
     LogRange,
@@ -52,9 +52,14 @@ from .log_layout import (
 from .package import Limits, WorkbookRefused, inspect_package
 from .safe_io import write_file_atomically
 
-__all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable"]
+__all__ = ["STREAM_FROM_BYTES", "STREAM_LIMITS", "wants_streaming", "annotate_streamed", "NotStreamable",
+           "AnnotatedBefore"]
 
 NotStreamable = ss.NotStreamable
+
+
+class AnnotatedBefore(NotStreamable):
+    """The sheet holds an earlier run's cells: they are replaced through openpyxl, whatever the log's length."""
 
 # A sheet part this large (about 80,000 rows of two columns) is edited as bytes:
 # openpyxl's cell model of it would take some 200 MiB and most of the run time.
@@ -197,6 +202,8 @@ def _scan(split, package, title, column, header_row):
     for rectangle in ss.merged_ranges(split.tail):
         occupancy.add_merged(*rectangle)
     header = first_log_row(title, number, found, header_row)
+    if earlier_run(top, LogRange(title, number, header + 1, header + 1)).found:
+        raise AnnotatedBefore("the sheet holds the cells of an earlier annotate run")
     last = max((row for row, value in found.items() if value is not None), default=header)
     values = [found.get(row) for row in range(header + 1, last + 1)]
     return shape, LogRange(title, number, header + 1, last), values, found.get(header), occupancy

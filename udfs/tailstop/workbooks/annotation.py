@@ -12,11 +12,12 @@ from openpyxl.utils.cell import get_column_letter
 
 from ..sheet import cells
 from .cell_check import sheet_reference
-from .log_layout import LIVE_NOTE_LINES, LogAnalysis, LogRange, block_layout, find_column, header_row_of
+from .log_layout import (BLOCK_TITLE, CAUTION, DECISION_HEADER, HEADER_SEARCH_ROWS, LIVE_NOTE_LINES, LogAnalysis,
+                         LogRange, block_layout, find_column, header_row_of)
 from .package import GRID_COLUMNS
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "BLOCK_GAP", "OUTPUT_SUFFIX", "check_log_column", "default_output",
-           "place_columns", "column_number_of", "first_log_row"]
+           "place_columns", "column_number_of", "first_log_row", "EarlierRun", "earlier_run"]
 
 OUTPUT_SUFFIX = "-tailstop"
 BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
@@ -73,12 +74,69 @@ def default_output(source) -> Path:
     return source.with_name(f"{source.stem}{OUTPUT_SUFFIX}.xlsx")
 
 
-def place_columns(log, occupancy, analysis, live, into=None):
+DECISION_TEXTS = frozenset({"PILOT", "CONTINUE", "STOP", "PAST STOP"})
+
+
+@dataclass(frozen=True)
+class EarlierRun:
+    """What an earlier ``annotate`` wrote on the sheet, recognised by its marks.
+
+    The decision column is the one whose cell in the log's header row reads ``DECISION_HEADER``; the
+    block starts at a ``BLOCK_TITLE`` cell in the top rows and ends at the caution line below it.
+
+    Attributes
+    ----------
+    decision_column, label_column : int or None
+    cells : list of (row, column)
+        The cells it wrote: the header and the decisions (texts, ``#TAILSTOP!`` texts, STOP_DECISION
+        formulas) of the decision column, and every cell of the block's two columns from title to caution.
+    """
+
+    decision_column: int | None
+    label_column: int | None
+    cells: list
+
+    @property
+    def found(self) -> bool:
+        return self.decision_column is not None or self.label_column is not None
+
+
+def earlier_run(values: dict, log: LogRange) -> EarlierRun:
+    """``EarlierRun`` from the sheet's cells, {(row, column): raw value} (formulas as their text)."""
+    header_row = log.first_row - 1
+    decision = min((column for (row, column), value in values.items()
+                    if row == header_row and value == DECISION_HEADER and column != log.column), default=None)
+    taken = []
+    if decision is not None:
+        taken = [(row, column) for (row, column), value in values.items()
+                 if column == decision and (row == header_row or (row > header_row and _is_decision(value)))]
+    titles = sorted((row, column) for (row, column), value in values.items()
+                    if value == BLOCK_TITLE and row <= HEADER_SEARCH_ROWS)
+    label = None
+    if titles:
+        top, column = titles[0]
+        end = min((row for (row, col), value in values.items() if col == column and row > top and value == CAUTION),
+                  default=None)
+        if end is not None:
+            label = column
+            taken += [(row, col) for (row, col) in values if col in (label, label + 1) and top <= row <= end]
+    return EarlierRun(decision, label, taken)
+
+
+def _is_decision(value):
+    if not isinstance(value, str):
+        return False
+    return value in DECISION_TEXTS or value.startswith(cells.ERROR_PREFIX) or (
+        value.startswith("=") and "STOP_DECISION(" in value.upper())
+
+
+def place_columns(log, occupancy, analysis, live, into=None, block_at=None):
     """The decision column, the estimate block's label column and its layout, over no cell that holds anything.
 
     The decision column covers the header row and the log's rows: the column ``into`` names, or the first
     column right of the log free there. The block takes the first two adjacent columns, at least
-    ``BLOCK_GAP`` columns right of the decision column, that are free in the block's rows.
+    ``BLOCK_GAP`` columns right of the decision column, that are free in the block's rows; ``block_at``
+    (where an earlier run put it) when it is free there.
     """
     rows = (log.first_row - 1, log.last_row)
     if into is not None:
@@ -90,7 +148,10 @@ def place_columns(log, occupancy, analysis, live, into=None):
     probe = block_layout(1, 1, notes)
     block_rows = (probe.top_row, probe.last_row)
     start = GRID_COLUMNS if decision_column is None else decision_column + 1 + BLOCK_GAP
-    label_column = next((column for column in range(start, GRID_COLUMNS)
+    candidates = range(start, GRID_COLUMNS)
+    if block_at is not None and block_at >= start:
+        candidates = [block_at, *candidates]
+    label_column = next((column for column in candidates
                          if occupancy.free(column, *block_rows) and occupancy.free(column + 1, *block_rows)), None)
     if decision_column is None or label_column is None:
         raise AnnotateRefused(f"sheet {sheet_reference(log.sheet_title)} has no free columns right of the log for "
