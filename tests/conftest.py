@@ -46,3 +46,13 @@ def soffice():
     with CI=true that is a failure with the same message (tests/libreoffice.py).
     """
     return require_libreoffice()
+
+
+@pytest.fixture(autouse=True, scope="session")
+def tuning_cache_in_a_temporary_folder(tmp_path_factory):
+    """pass-fail-exact keeps its tunings in a cache folder: the tests use one of their own, never the user's."""
+    folder = tmp_path_factory.mktemp("tuning-cache")
+    patch = pytest.MonkeyPatch()
+    patch.setenv("TAILSTOP_CACHE_DIR", str(folder))
+    yield folder
+    patch.undo()

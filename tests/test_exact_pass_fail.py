@@ -285,3 +285,10 @@ def test_the_table_in_the_method_page_is_what_the_tuning_gives(accuracy, confide
     assert float(cells[4]) >= confidence
     # the pass-fail column: its lowest coverage is below the confidence (propagation written here, at a p near it)
     assert float(cells[6]) < confidence
+
+
+def test_an_accuracy_too_tight_to_tune_is_refused_in_words():
+    log = [[v] for v in (500, 1500, 700, 2100, 300, 1200, 800, 950, 1800, 400, 650, 1300)]
+    text = STOP_DECISION(log, 1000, 1.01, 0.95, 2, "pass-fail-exact")
+    assert text.startswith("#TAILSTOP!") and "use pass-fail" in text.lower()
+    assert STOP_DECISION(log, 1000, 1.01, 0.95, 2, "pass-fail") == "CONTINUE"

@@ -136,6 +136,8 @@ def _beside(result, accuracy):
     """Rows that put pass-fail and pass-fail-exact side by side (what the exact guarantee costs in units)."""
     if result.method not in PASS_FAIL_METHODS or accuracy is None:
         return []
+    if not guaranteed.tunable(accuracy, result.confidence):
+        return [["pass-fail-exact", "not tuned this close to d = 1; pass-fail's coverage is near nominal here"]]
     tuned = guaranteed.tuning(accuracy, result.confidence, result.pilot)
     rows = [
         ["pass-fail-exact tuning factor", tuned.factor],

@@ -20,9 +20,11 @@ from . import cache
 from .lattice import stop_condition
 from .bisection import ALGORITHM, Tuning, base_boundary, tune
 
-__all__ = ["METHOD", "Tuning", "tuning", "stop_condition", "clear_memory_cache"]
+__all__ = ["METHOD", "LARGEST_BOUNDARY", "Tuning", "tuning", "tunable", "stop_condition", "clear_memory_cache"]
 
 METHOD = "pass-fail-exact"
+# (z / log d)² beyond which tuning is refused: the lattice and the check grow about as its square
+LARGEST_BOUNDARY = 450.0
 _MEMORY = {}
 _LOCK = threading.Lock()
 
@@ -40,6 +42,11 @@ def _check(accuracy, confidence, pilot, check_every):
         raise ValueError(f"pilot must be a whole number >= 2 (got {pilot!r})")
     if not (float(check_every).is_integer() and check_every >= 1):
         raise ValueError(f"check_every must be a whole number >= 1 (got {check_every!r})")
+    if base_boundary(accuracy, confidence) > LARGEST_BOUNDARY:
+        raise ValueError(
+            f"pass-fail-exact is tuned where (z / log d)² is at most {LARGEST_BOUNDARY:g} (about d >= 1.1 at 95 % "
+            f"confidence; here {base_boundary(accuracy, confidence):,.0f}): its exact check would take too long. "
+            "Use pass-fail, whose coverage this close to d = 1 is near the nominal level, or a larger accuracy factor")
 
 
 def _from_record(record, key_fields):
@@ -69,6 +76,11 @@ def tuning(accuracy, confidence, pilot, check_every=1) -> Tuning:
             cache.write_record(key, result.as_record())
         _MEMORY[key] = result
         return result
+
+
+def tunable(accuracy, confidence):
+    """False where tuning is refused because the accuracy is too tight (see ``LARGEST_BOUNDARY``)."""
+    return base_boundary(accuracy, confidence) <= LARGEST_BOUNDARY
 
 
 def clear_memory_cache():

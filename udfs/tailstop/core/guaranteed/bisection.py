@@ -2,7 +2,7 @@
 
 The pass-fail rule stops when n >= B σ̂², B = (z / log d)². pass-fail-exact
 stops when n >= c·B·σ̂² (``lattice.stop_condition``) with the tuning factor
-c >= 1 chosen by bisection: the smallest c (to 1 %) for which
+c >= 1 chosen by bisection: the smallest c (to 2 %) for which
 ``certify.certify`` proves that the exact coverage of [q̂/d, q̂·d] at the
 stop is at least the confidence for every p in [p_low, 1 - p_low].
 
@@ -24,10 +24,10 @@ from .lattice import first_passage_counts
 __all__ = ["Tuning", "tune", "p_low_for", "box_for", "UNIT_BUDGET", "P_FLOOR", "ALGORITHM"]
 
 # Changing anything that moves a tuning result must change this (it keys the disk cache).
-ALGORITHM = "pass-fail-exact/3"
+ALGORITHM = "pass-fail-exact/4"
 UNIT_BUDGET = 40_000
 P_FLOOR = 1e-6
-_RESOLUTION = 0.01   # relative width of the final bisection bracket of c
+_RESOLUTION = 0.02   # relative width of the final bisection bracket of c
 _GROWTH = 1.25       # steps of c while looking for a factor that holds
 _LARGEST = 50.0
 

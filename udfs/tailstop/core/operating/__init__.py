@@ -29,6 +29,7 @@ References: Banerjee, S. & Mukhopadhyay, N. (2016), Ann. Inst. Stat. Math. 68,
 """
 from __future__ import annotations
 
+from .. import guaranteed
 from ..methods import get_method
 from ..models import DEFAULT_MODEL, get_model
 from ..models.gamma.tail import tail_probability  # noqa: F401  (the gamma tail, as callers import it from here)
@@ -117,7 +118,10 @@ def compare_methods(threshold, shape, scale, accuracy, confidence, pilot, *, rep
     counts = {"known-shape": replications, "fitted-shape": fitted_replications or replications}
     weights = {"pass-fail": 0.03, "pass-fail-exact": 0.02, "known-shape": 0.25, "fitted-shape": 0.70}
     results, done = {}, 0.0
-    for method in ("pass-fail", "pass-fail-exact", "known-shape", "fitted-shape"):
+    methods = ("pass-fail", "pass-fail-exact", "known-shape", "fitted-shape")
+    if not guaranteed.tunable(accuracy, confidence):
+        methods = tuple(m for m in methods if m != "pass-fail-exact")  # refused this close to d = 1
+    for method in methods:
         def report(fraction, base=done, weight=weights[method]):
             if progress is not None:
                 progress(base + weight * fraction)
