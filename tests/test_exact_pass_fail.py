@@ -292,3 +292,24 @@ def test_an_accuracy_too_tight_to_tune_is_refused_in_words():
     text = STOP_DECISION(log, 1000, 1.01, 0.95, 2, "pass-fail-exact")
     assert text.startswith("#TAILSTOP!") and "use pass-fail" in text.lower()
     assert STOP_DECISION(log, 1000, 1.01, 0.95, 2, "pass-fail") == "CONTINUE"
+
+
+def test_annotate_writes_the_decisions_of_the_formula(tmp_path, capsys):
+    import openpyxl
+
+    from conftest import write_log
+    from tailstop.commands import main
+    from tailstop.workbooks.annotate import default_output
+    from tailstop.workbooks.log_layout import DECISION_HEADER
+
+    rng = np.random.default_rng(99)
+    lifetimes = [float(v) for v in np.round(rng.exponential(1000 / -math.log(0.2), 120), 1) + 0.1]
+    path = write_log(tmp_path / "log.xlsx", lifetimes)
+    code = main(["annotate", str(path), "--column", "B", "--threshold", "1000", "--accuracy", "3",
+                 "--confidence", "0.9", "--pilot", "2", "--method", "pass-fail-exact"])
+    assert code == 0, capsys.readouterr()
+    sheet = openpyxl.load_workbook(default_output(path))["Log"]
+    column = next(cell.column for cell in sheet[1] if cell.value == DECISION_HEADER)
+    written = [sheet.cell(row, column).value for row in range(2, len(lifetimes) + 2)]
+    expected = [row[0] for row in STOP_DECISION_COLUMN([[v] for v in lifetimes], 1000, 3, 0.9, 2, "pass-fail-exact")]
+    assert written == expected and "STOP" in written
