@@ -8,6 +8,8 @@ reads the functions its Function Wizard lists
 saves it as .xlsx to SAVED_AS, and stops soffice again.
 """
 import json
+import os
+import signal
 import subprocess
 import sys
 import time
@@ -20,7 +22,7 @@ soffice, book, saved_as, *environment = sys.argv[1:]
 pipe = f"tailstop{uuid.uuid4().hex}"
 office = subprocess.Popen([soffice, *environment, "--headless", "--invisible", "--norestore", "--nolockcheck",
                            f"--accept=pipe,name={pipe};urp;"], stdin=subprocess.DEVNULL,
-                          stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+                          stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
 try:
     local = uno.getComponentContext()
     resolver = local.ServiceManager.createInstanceWithContext("com.sun.star.bridge.UnoUrlResolver", local)
@@ -56,6 +58,9 @@ try:
         pass
     office.wait(timeout=60)
 finally:
-    if office.poll() is None:
-        office.kill()
-        office.wait()
+    # soffice may have started soffice.bin beside itself: end the whole group, whatever happened above
+    try:
+        os.killpg(office.pid, signal.SIGKILL)
+    except ProcessLookupError:
+        pass
+    office.wait()
