@@ -18,6 +18,7 @@ import tailstop.workbooks.annotate_stream as annotate_stream
 from libreoffice import LibreOfficeFailed, convert_with_libreoffice, find_soffice
 from tailstop.commands import main
 from tailstop.workbooks.annotate import annotate
+from tailstop.workbooks.annotation import LIVE_MARGIN
 from tailstop.workbooks.cached_values import EXCEL_ERRORS
 from tailstop.workbooks.log_layout import DECISION_HEADER, RulePlan
 from test_annotate import all_cells, rule_stop
@@ -224,8 +225,7 @@ def test_live_decisions_on_blank_rows_are_guarded_and_recalculate_in_one_pass(tm
     assert guarded.startswith('=IF(ISBLANK(C9),"",STOP_DECISION($C$4:C9,')
     columns, values = taken_out(result.path, monkeypatch)
     # the guarded decisions are still computed as one column, and the same as the engine computes each cell
-    # (and the block's "Decision after the last row", the same call on the whole log)
-    assert [(column.name, len(column.cells)) for column in columns] == [("STOP_DECISION", result.log.rows + 1)]
+    assert [(column.name, len(column.cells)) for column in columns] == [("STOP_DECISION", result.log.rows)]
     same_values(values, cell_by_cell(result.path, monkeypatch))
     cached = openpyxl.load_workbook(result.path, data_only=True)[SHEET]
     for row in range(FIRST_ROW, result.log.last_row + 1):
@@ -285,7 +285,8 @@ def test_running_again_on_an_unchanged_log_changes_no_cell(tmp_path, streaming, 
     once = all_cells(path), tool_marks(path)
     annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
     assert (all_cells(path), tool_marks(path)) == once
-    assert once[1] == (["E3", "I1"], ["E4:E65"])  # one decision column, one block, one STOP highlight
+    margin = LIVE_MARGIN if live else 0  # live decisions reach empty rows below the log
+    assert once[1] == (["E3", "I1"], [f"E4:E{65 + margin}"])  # one decision column, one block, one STOP highlight
 
 
 @pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
@@ -305,7 +306,7 @@ def test_rows_added_since_the_last_run_get_their_decisions(tmp_path, streaming, 
     before = all_cells(path)
     second = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
     assert (second.decision_column, second.block.split(":")[0]) == (first.decision_column, "I1")
-    assert tool_marks(path) == (["E3", "I1"], [f"E4:E{rows[-1]}"])
+    assert tool_marks(path) == (["E3", "I1"], [f"E4:E{rows[-1] + (LIVE_MARGIN if live else 0)}"])
     shown = openpyxl.load_workbook(path, data_only=True)[SHEET]
     stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
     expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
@@ -318,3 +319,31 @@ def test_rows_added_since_the_last_run_get_their_decisions(tmp_path, streaming, 
         if openpyxl.utils.cell.coordinate_from_string(coordinate)[0] not in ("E", "I", "J"):
             assert after[SHEET][coordinate] == content, coordinate
     assert after["Rig notes"] == before["Rig notes"]
+
+
+def test_a_unit_typed_below_a_live_log_is_decided_and_counted(tmp_path, streaming, capsys):
+    from tailstop.workbooks.recalc import recalc
+
+    hours = bearing_hours(61)
+    path = bearing_log(tmp_path / "bearing.xlsx", hours[:60], average=False)
+    # odds within 1.2: the rule cannot stop within 61 units, so the block follows every unit
+    code, out, _ = run(capsys, path, "--column", "C", "--threshold", THRESHOLD, "--accuracy", 1.2, "--pilot", PILOT,
+                       "--live")
+    assert code == 0 and "live: the decision formulas and the block's ranges reach row 165" in out
+    annotated = tmp_path / "bearing-tailstop.xlsx"
+    sheet = openpyxl.load_workbook(annotated)[SHEET]
+    assert sheet["E100"].value.startswith('=IF(ISBLANK(C100),"",STOP_DECISION($C$4:C100,')
+    book = openpyxl.load_workbook(annotated)
+    book[SHEET]["C66"] = hours[60]  # the next result, typed in the row below the log
+    book.save(tmp_path / "typed.xlsx")
+    shown = openpyxl.load_workbook(recalc(tmp_path / "typed.xlsx", tmp_path / "computed.xlsx").path,
+                                   data_only=True)[SHEET]
+    assert rule_stop(hours, THRESHOLD, 1.2, 0.95, PILOT) is None  # the rule written out plainly (METHOD.md §5)
+    assert shown["E66"].value == "CONTINUE"
+    assert shown["E67"].value in (None, "")
+    block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
+    assert block["Decision after the last row"] == shown["E66"].value
+    assert block["Units used, N"] == 61  # all units, the one typed last among them
+    # the pass-fail estimate is the share of units beyond the threshold, counted here
+    assert block["Estimate of p = P(life > threshold)"] == pytest.approx(
+        sum(value > THRESHOLD for value in hours) / 61, rel=1e-15)

@@ -100,9 +100,14 @@ def summary(result) -> str:
 
     analysis, log = result.analysis, result.log
     figures = analysis.figures
-    lines = [f"Annotated {log.text()} ({analysis.units} units) -> {result.path}"]
+    filled = log.last_row - result.margin
+    lines = [f"Annotated {sheet_reference(log.sheet_title)}!{log.letter}{log.first_row}:{log.letter}{filled} "
+             f"({analysis.units} units) -> {result.path}"]
     lines.append(f"  header: row {log.first_row - 1} ({result.header!r}); the log is rows {log.first_row} to "
-                 f"{log.last_row}")
+                 f"{filled}")
+    if result.margin:
+        lines.append(f"  live: the decision formulas and the block's ranges reach row {log.last_row}, so units typed "
+                     "below the log are decided and counted with the add-in installed")
     lines.append(f"  rule: {analysis.plan.describe()}")
     if analysis.stopped:
         row = log.first_row + analysis.stop_offset

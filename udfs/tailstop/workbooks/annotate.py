@@ -52,6 +52,7 @@ from .annotation import (
     check_log_column,
     column_number_of,
     earlier_run,
+    with_margin,
     default_output,
     first_log_row,
     place_columns,
@@ -134,6 +135,8 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     losses += _hidden_values(source, book, allow_lossy)
     worksheet = _worksheet(book, sheet, source)
     log, values, header = _log_column(worksheet, column, header_row)
+    filled = log.last_row
+    log, values = with_margin(log, values, live)
     analysis = analyse_log(log, values, plan)
     before = cell_check.snapshot(book)
     cached = dict(before.rounded)  # numbers openpyxl would round are stored exactly
@@ -149,7 +152,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     saved = write_file_atomically(target, lambda handle: handle.write(data), in_place=in_place, backup=backup)
     _check_written(saved.path, data)
     return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
-                          checked, len(before.cells), losses, live, header=header)
+                          checked, len(before.cells), losses, live, header=header, margin=log.last_row - filled)
 
 
 def _clear_earlier(worksheet, log):

@@ -36,7 +36,7 @@ from openpyxl.xml.functions import tostring
 from . import cell_check
 from . import sheet_stream as ss
 from .annotation import (AnnotateRefused, AnnotateResult, check_log_column, column_number_of, earlier_run,
-                         first_log_row, place_columns)
+                         first_log_row, place_columns, with_margin)
 from .log_layout import (
     HEADER_SEARCH_ROWS,
     LogRange,
@@ -119,6 +119,8 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     except cell_check.UnreadableCells as problem:
         raise WorkbookRefused(f"{source.name}: sheet {title!r}: {problem}") from None
     check_log_column(log, header)
+    filled = log.last_row
+    log, values = with_margin(log, values, live)
     analysis = analyse_log(log, values, plan)
     del values
     decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into)
@@ -151,7 +153,7 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     saved = write_file_atomically(target, write, in_place=in_place, backup=backup, check=check)
     return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
                           checked["cells"], len(worksheets), [], live, copied_parts=checked["copied"],
-                          header="" if header is None else str(header))
+                          header="" if header is None else str(header), margin=log.last_row - filled)
 
 
 def _sheet_title(workbook, titles, worksheets, sheet, source):

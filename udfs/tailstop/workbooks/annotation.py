@@ -17,7 +17,8 @@ from .log_layout import (BLOCK_TITLE, CAUTION, DECISION_HEADER, HEADER_SEARCH_RO
 from .package import GRID_COLUMNS
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "BLOCK_GAP", "OUTPUT_SUFFIX", "check_log_column", "default_output",
-           "place_columns", "column_number_of", "first_log_row", "EarlierRun", "earlier_run"]
+           "place_columns", "column_number_of", "first_log_row", "EarlierRun", "earlier_run", "LIVE_MARGIN",
+           "with_margin"]
 
 OUTPUT_SUFFIX = "-tailstop"
 BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
@@ -52,6 +53,8 @@ class AnnotateResult:
         then counts the log sheet's cells. None when the book went through openpyxl.
     header : str
         The text of the header cell (the row above ``log.first_row``).
+    margin : int
+        Empty rows below the log that the live formulas cover (``log`` includes them).
     """
 
     path: Path
@@ -66,12 +69,27 @@ class AnnotateResult:
     live: bool
     copied_parts: int | None = None
     header: str = ""
+    margin: int = 0
 
 
 def default_output(source) -> Path:
     """``LOG-tailstop.xlsx`` beside ``LOG.xlsx``."""
     source = Path(source)
     return source.with_name(f"{source.stem}{OUTPUT_SUFFIX}.xlsx")
+
+
+# live formulas reach this many empty rows below the log, so that units typed there are decided and counted
+LIVE_MARGIN = 100
+LAST_SHEET_ROW = 1_048_576
+
+
+def with_margin(log: LogRange, values, live):
+    """(log range, values) reaching ``LIVE_MARGIN`` empty rows further down in live mode (the sheet's end at most)."""
+    if not live:
+        return log, values
+    last = min(log.last_row + LIVE_MARGIN, LAST_SHEET_ROW)
+    extended = LogRange(log.sheet_title, log.column, log.first_row, last)
+    return extended, list(values) + [None] * (last - log.last_row)
 
 
 DECISION_TEXTS = frozenset({"PILOT", "CONTINUE", "STOP", "PAST STOP"})

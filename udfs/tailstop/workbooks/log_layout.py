@@ -432,7 +432,10 @@ def _analyse(log, values, plan):
     if units_used < MIN_PILOT:
         raise LogProblem(f"{log.text()} holds {units_used} unit{'s' if units_used != 1 else ''}; "
                          f"an estimate needs at least {MIN_PILOT}")
-    last_decision = _formula("STOP_DECISION")(column, *arguments)
+    filled = len(values)
+    while filled and values[filled - 1] is None:  # empty rows a live log keeps ready below its last unit
+        filled -= 1
+    last_decision = _formula("STOP_DECISION")(column[:filled], *arguments)
     figures = _figures(used, column, plan)
     survivors = reading.survivors[: units_used] if reading.survivors[: units_used].any() else None
     try:
@@ -575,7 +578,9 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
     method_args = f"{a('method')},{a('shape')},{a('model')}"
     rule = decision_rule(layout)
     return {
-        "last_decision": f"=STOP_DECISION({whole},{rule})",
+        # the log down to its last filled row (the last number's or text's position): the decision after it
+        "last_decision": f'=STOP_DECISION(INDEX({whole},1):INDEX({whole},MAX(IFERROR(MATCH(9.99E+307,{whole}),0),'
+                         f'IFERROR(MATCH(REPT("z",255),{whole}),0))),{rule})',
         "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),ROWS({whole}))',
         "units_used": f"=COUNTA({used})",
         # a failure is a number, a suspended unit the text 1200+
