@@ -34,6 +34,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
+from .newton import damped_newton_step
 from .weibull import log1mexp
 
 __all__ = ["FAMILIES", "fit_known_shape", "fit_shape_and_scale", "sigma2_known_shape", "sigma2_fitted_shape",
@@ -184,7 +185,7 @@ def fit_shape_and_scale(family, failures, suspensions, iterations=200):
         sub_s = (suspensions[0][index], suspensions[1][index])
         mu, alpha = location[index], log_width[index]
         value, gradient, hessian = _derivatives(family, sub_f, sub_s, mu, alpha)
-        step_mu, step_alpha = _newton_step(gradient, hessian, np.exp(alpha))
+        step_mu, step_alpha = damped_newton_step(gradient, hessian, (np.exp(alpha), 0.5))
         for _halving in range(40):
             trial = log_likelihood(family, sub_f, sub_s, mu + step_mu, alpha + step_alpha)
             worse = ~(trial >= value - 1e-12 * np.abs(value))
@@ -200,21 +201,6 @@ def fit_shape_and_scale(family, failures, suspensions, iterations=200):
         active[index[~np.isfinite(location[index] + log_width[index])]] = False
     ok = converged & np.isfinite(location) & (np.abs(log_width) < 30)
     return np.where(ok, location, np.nan), np.where(ok, log_width, np.nan)
-
-
-def _newton_step(gradient, hessian, width):
-    """Newton step for a maximum, shifted (Levenberg) where the Hessian is not negative definite."""
-    g_mu, g_alpha = gradient
-    h_mm, h_ma, h_aa = hessian
-    mean, spread = 0.5 * (h_mm + h_aa), np.hypot(0.5 * (h_mm - h_aa), h_ma)
-    shift = np.maximum(0.0, mean + spread + 1e-6 * np.abs(mean) + 1e-12)
-    h_mm, h_aa = h_mm - shift, h_aa - shift
-    determinant = h_mm * h_aa - h_ma * h_ma
-    step_mu = -(h_aa * g_mu - h_ma * g_alpha) / determinant
-    step_alpha = -(h_mm * g_alpha - h_ma * g_mu) / determinant
-    largest = np.maximum(np.abs(step_mu) / width, np.abs(step_alpha) / 0.5)
-    limit = np.where(largest > 1.0, 1.0 / largest, 1.0)
-    return step_mu * limit, step_alpha * limit
 
 
 def _log_odds_gradient(family, location, log_width, threshold):

@@ -17,12 +17,13 @@ decreases in u: for a known shape the scale solves one monotone equation,
 with a root whenever r >= 1 (Newton, steps kept to 1 in u). Without
 suspensions the root is ŝ = X/(r a), the complete-data estimate.
 
-Shape. The profile ℓ(a, û(a)) is maximised in α = log a by safeguarded
-Newton on its derivative (the envelope theorem gives it as ∂ℓ/∂a at û(a)),
-inside a bracket that halves when a Newton step leaves it.
+Shape. With the shape free, a damped Newton iteration in (α = log a, u)
+with step halving finds the maximum, from the complete-data shape of the
+failures; the shape derivatives of log Q(a, z) and of h come from central
+differences at a(1 ± δ), everything else is analytic.
 
-Variance. The observed information J of (α, u) at the estimate (analytic in
-u, central differences of the analytic score in α) and the gradient g of
+Variance. The observed information J of (α, u) at the estimate (the same
+derivatives) and the gradient g of
 the log-odds of p = Q(a, c/s) give Var(log q̂) = gᵀ J⁻¹ g, and σ̂² = n gᵀ J⁻¹ g
 with n all the units, failed and suspended. Without suspensions J is n times
 the expected information at the estimate (gamma is an exponential family),
@@ -36,6 +37,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
+from ..newton import damped_newton_step
 from .tail import log_density_term, tail_probability_standard
 from .variance import density_over_variance, log_odds_shape_derivative
 
@@ -130,22 +132,6 @@ def _derivatives(failures, suspensions, log_shape, log_scale, relative_step=1e-4
     return value, gradient, hessian
 
 
-def _newton_step(gradient, hessian):
-    """The Newton step for a maximum, damped (Levenberg) where the Hessian is not negative definite."""
-    g_a, g_u = gradient
-    h_aa, h_au, h_uu = hessian
-    # largest eigenvalue of the 2x2 Hessian; shift it below zero when needed
-    mean, spread = 0.5 * (h_aa + h_uu), np.hypot(0.5 * (h_aa - h_uu), h_au)
-    shift = np.maximum(0.0, mean + spread + 1e-6 * np.abs(mean) + 1e-12)
-    h_aa, h_uu = h_aa - shift, h_uu - shift
-    determinant = h_aa * h_uu - h_au * h_au
-    step_a = -(h_uu * g_a - h_au * g_u) / determinant
-    step_u = -(h_aa * g_u - h_au * g_a) / determinant
-    largest = np.maximum(np.abs(step_a) / 0.5, np.abs(step_u))
-    limit = np.where(largest > 1.0, 1.0 / largest, 1.0)
-    return step_a * limit, step_u * limit
-
-
 def fit_shape_and_scale(failures, suspensions, start_shape, iterations=100):
     """(â, û) by ML from a first guess of the shape (1 where NaN), by damped Newton in (log a, log s).
 
@@ -166,7 +152,7 @@ def fit_shape_and_scale(failures, suspensions, start_shape, iterations=100):
         sub_f = tuple(np.asarray(f)[index] for f in failures)
         sub_s = (suspensions[0][index], suspensions[1][index])
         value, gradient, hessian = _derivatives(sub_f, sub_s, alpha[index], u[index])
-        step_a, step_u = _newton_step(gradient, hessian)
+        step_a, step_u = damped_newton_step(gradient, hessian, (0.5, 1.0))
         for _halving in range(30):
             trial_a = np.clip(alpha[index] + step_a, *edges)
             trial = log_likelihood(sub_f, sub_s, np.exp(trial_a), u[index] + step_u)
