@@ -360,3 +360,11 @@ def test_formula_answers_bad_input_with_cell_text(args, fragment):
     result = TAIL_METHOD_NOTES(*args)
     assert isinstance(result, str) and result.startswith("#TAILSTOP!")
     assert fragment in result
+
+
+def test_formula_refuses_a_suspension_below_the_threshold_under_pass_fail_exact():
+    # its exact guarantee counts units on each side of the threshold only: the notes say so, as the estimate does
+    values = [[10.0], [20.0], ["50+"], [130.0]]
+    result = TAIL_METHOD_NOTES(values, 100.0, "pass-fail-exact")
+    assert isinstance(result, str) and result.startswith("#TAILSTOP!") and "pass-fail-exact" in result
+    assert "internal error" not in result

@@ -354,8 +354,8 @@ def censoring_notes(times, suspended, threshold, method):
     """
     x = np.asarray(times, dtype=float).ravel()
     censored = censored_units(x, suspended, threshold, method)
-    if not censored.any():
-        return []
+    if not censored.any() or method not in FAILURES_NEEDED:
+        return []  # pass-fail-exact refuses a unit suspended below the threshold (methods.estimate_tail)
     flags = np.asarray(suspended, dtype=bool).ravel()
     n, count = int(x.size), int(censored.sum())
     failures = int(np.sum(~flags & (x <= threshold))) if method == "pass-fail" else int(np.sum(~flags))
