@@ -1,8 +1,8 @@
 """`tailstop recalc` of filled-down logs: LibreOffice with the extension against the built-in engine.
 
-A log of N invented lifetimes (seeded gamma draws, a few survivors marked
-``1500+``) with STOP_DECISION, TAIL_PROB_EST and UNITS_NEEDED_NOW filled down
-over the growing range $B$2:B<row>, as `tailstop annotate --live` writes them.
+The live logs of ``bench_recalc.py`` (N invented lifetimes; STOP_DECISION,
+TAIL_PROB_EST and UNITS_NEEDED_NOW filled down over the growing range
+$B$2:B<row>, reading a small settings block with blank optional settings).
 Each engine is timed from the command's start (``tailstop recalc``, in this
 process) to the written book; LibreOffice's time includes building and
 installing the extension and starting soffice in a fresh profile.
@@ -21,32 +21,10 @@ import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
 import openpyxl
+from bench_recalc import live_log
 
 from tailstop.commands import main
-
-THRESHOLD, ACCURACY, CONFIDENCE, PILOT = 1500, 2, 0.9, 10
-
-
-def filled_down_log(path, rows):
-    rng = np.random.default_rng(11)
-    lifetimes = np.round(rng.gamma(2.0, 700.0, size=rows), 1)
-    book = openpyxl.Workbook()
-    sheet = book.active
-    sheet.title = "Log"
-    sheet.append(["Unit", "Hours", "Decision", "P estimate", "Units needed"])
-    for index, hours in enumerate(lifetimes):
-        row = index + 2
-        value = "1500+" if index % 17 == 5 else float(hours)
-        growing = f"$B$2:B{row}"
-        sheet.append([index + 1, value,
-                      f"=STOP_DECISION({growing},{THRESHOLD},{ACCURACY},{CONFIDENCE},{PILOT})",
-                      f"=TAIL_PROB_EST({growing},{THRESHOLD})",
-                      f"=UNITS_NEEDED_NOW({growing},{THRESHOLD},{ACCURACY},{CONFIDENCE})"])
-    book.save(path)
-    return path
-
 
 def timed(arguments):
     start = time.perf_counter()
@@ -74,7 +52,8 @@ def differing_cells(first, second):
 def main_benchmark(sizes):
     with tempfile.TemporaryDirectory() as folder:
         for rows in sizes:
-            log = filled_down_log(Path(folder) / f"log-{rows}.xlsx", rows)
+            log = Path(folder) / f"log-{rows}.xlsx"
+            live_log(log, rows)
             by_engine = Path(folder) / f"formulas-{rows}.xlsx"
             by_office = Path(folder) / f"libreoffice-{rows}.xlsx"
             builtin = timed(["recalc", str(log), "--out", str(by_engine)])

@@ -139,3 +139,16 @@ def test_the_missing_package_is_named_also_through_libreoffices_import_hook(comp
     replaced = ImportError("No module named 'scipy' (or 'estimate.TAIL_PROB' is unknown)")
     assert "cannot import scipy:" in component.import_problem(replaced)
     assert "cannot import numpy:" in component.import_problem(ModuleNotFoundError("x", name="numpy.linalg"))
+
+
+def test_an_optional_zero_the_formula_refuses_counts_as_left_empty(component):
+    spec = {"arguments": ["threshold", "check_every", "seed"], "optional": ["check_every", "seed"]}
+
+    def formula(threshold, check_every=None, seed=None):
+        if check_every is not None and check_every < 1:
+            return f"#TAILSTOP! check_every must be at least 1 (got {check_every:g})"
+        return (threshold, check_every, seed)
+
+    assert component._evaluate(formula, spec, [5.0, 0.0, 0.0]) == (5.0, None, None)
+    assert component._evaluate(formula, spec, [5.0, 2.0, 0.0]) == (5.0, 2.0, 0.0)  # an accepted 0 stays
+    assert component._evaluate(formula, spec, [5.0, -1.0, None]).startswith("#TAILSTOP! check_every")

@@ -37,7 +37,7 @@ SESSION_SCRIPT = Path(__file__).with_name("libreoffice_session.py")
 LOG = [310.0, None, "1500+", 720.0, 150.0, "1500+", 980.0, None, 420.0, 1330.0, 260.0, 870.0]
 FAILURES = [310.0, 720.0, 150.0, 980.0, 420.0, 1330.0, 260.0, 870.0, 505.0, 640.0]
 PAIR = [410.0, 390.0]
-RANGES = {"LOG": ("A", LOG), "FAILURES": ("B", FAILURES), "PAIR": ("C", PAIR)}
+RANGES = {"LOG": ("A", LOG), "FAILURES": ("B", FAILURES), "PAIR": ("C", PAIR), "BLANK": ("D", [None])}
 
 # Every formula, with good and bad arguments; range names stand for the columns above.
 CASES = {
@@ -56,7 +56,9 @@ CASES = {
     "FIT_PVALUE": [["FAILURES", "weibull"], ["FAILURES", "circle"]],
     "FIT_COMPARE": [["FAILURES"]],
     "STOP_DECISION": [["LOG", 500, 3, 0.9, 4], ["LOG", 500, 3, 0.9, 1],
-                      ["FAILURES", 500, 2, 0.9, 4, "known-shape", 1.8, 1, "weibull"]],
+                      ["FAILURES", 500, 2, 0.9, 4, "known-shape", 1.8, 1, "weibull"],
+                      # settings cells left blank, which Calc passes as 0 and Excel as nothing
+                      ["LOG", 500, 3, 0.9, 4, "BLANK", "BLANK", "BLANK", "BLANK"]],
     "STOP_DECISION_COLUMN": [["LOG", 500, 3, 0.9, 4]],
     "UNITS_NEEDED_NOW": [["LOG", 500, 2, 0.9]],
     "TWO_STAGE_UNITS": [["LOG", 500, 2, 0.9]],
@@ -117,7 +119,7 @@ def office():
 
 def reference(name):
     column, values = RANGES[name]
-    return f"Data!${column}$1:${column}${len(values)}"
+    return f"Data!${column}$1" if name == "BLANK" else f"Data!${column}$1:${column}${len(values)}"
 
 
 def formula_text(name, arguments):
@@ -131,8 +133,14 @@ def formula_text(name, arguments):
 
 def python_value(name, arguments):
     """The formula called in Python with the arguments as xlwings passes them, as a grid of cells."""
-    cells = [[[value] for value in RANGES[a][1]] if isinstance(a, str) and a in RANGES
-             else (float(a) if isinstance(a, (int, float)) else a) for a in arguments]
+    def cells_of(argument):
+        if argument == "BLANK":
+            return None  # an empty cell, referenced on its own
+        if isinstance(argument, str) and argument in RANGES:
+            return [[value] for value in RANGES[argument][1]]
+        return float(argument) if isinstance(argument, (int, float)) else argument
+
+    cells = [cells_of(argument) for argument in arguments]
     value = FORMULAS[name](*cells)
     if not isinstance(value, list):
         return [[value]]

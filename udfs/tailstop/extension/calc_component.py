@@ -125,10 +125,35 @@ def call_formula(name, arguments):
     try:
         values = [to_argument(value, argument in spec["ranges"])
                   for value, argument in zip(arguments, spec["arguments"])]
-        return to_result(table[name](*values), spec["returns"])
+        return to_result(_evaluate(table[name], spec, values), spec["returns"])
     except Exception as failure:  # noqa: BLE001 - no traceback may reach a cell
         return to_result(f"{ERROR_PREFIX} internal error ({type(failure).__name__}); please report it with the inputs",
                          spec["returns"])
+
+
+def _evaluate(function, spec, values):
+    """The formula's result; an optional 0 it refuses is taken as an argument left empty.
+
+    Calc passes an empty cell referenced on its own as 0, where Excel passes
+    nothing: a settings cell left blank (no shape, no batch size) would end in
+    a message such as "check_every must be at least 1 (got 0)". When the
+    formula refuses the values and some optional arguments are exactly 0, it
+    is asked again with those left out, and that answer is kept unless it is a
+    message too. A 0 the formula accepts (a seed of 0) stays a 0.
+    """
+    result = function(*values)
+    if not _is_message(result):
+        return result
+    zeros = [index for index, argument in enumerate(spec["arguments"])
+             if argument in spec["optional"] and type(values[index]) is float and values[index] == 0.0]
+    if not zeros:
+        return result
+    retry = function(*[None if index in zeros else value for index, value in enumerate(values)])
+    return result if _is_message(retry) else retry
+
+
+def _is_message(result):
+    return isinstance(result, str) and result.startswith(ERROR_PREFIX)
 
 
 def _formula_method(name):
