@@ -74,3 +74,16 @@ def test_demo_models_match_the_guess_mean_and_spread():
         matched = distribution(shape, scale=scale)
         assert matched.mean() == pytest.approx(reference.mean(), rel=1e-10)
         assert matched.std() == pytest.approx(reference.std(), rel=1e-10)
+
+
+def test_cautions_quote_the_three_models_of_the_demo_guess():
+    # regression guard: the figures docs/cautions.md quotes are what TAIL_PROB gives for the matched models
+    from pathlib import Path
+
+    from tailstop import sheet
+    from tailstop.workbooks import scenario
+
+    text = (Path(__file__).resolve().parents[1] / "docs" / "cautions.md").read_text(encoding="utf-8")
+    models = demo_books.matched_models(scenario.GUESS_SHAPE, scenario.GUESS_SCALE)
+    quoted = [f"{sheet.TAIL_PROB(scenario.THRESHOLD, *models[name], name):.2f}" for name in demo_books.MODEL_NAMES_SHOWN]
+    assert f"p = {quoted[0]}, {quoted[1]} and {quoted[2]}" in " ".join(text.split())

@@ -72,7 +72,7 @@ PLAN_BOOK = "valve-test-plan.xlsx"
 FIXED_TIME = _dt.datetime(2026, 1, 5, 8, 0, 0)
 METHOD = "pass-fail"
 PLAN_METHODS = ("pass-fail", "known-shape", "fitted-shape")
-SUMMARY_ROWS = 22  # the longest PLAN_SUMMARY table (simulated methods)
+SUMMARY_ROWS = 24  # the longest PLAN_SUMMARY table (pass-fail, with its pass-fail-exact rows)
 
 SOFT_FONT = Font(italic=True, color="5D6D7E")
 ROW_STOP_FILL = PatternFill("solid", fgColor="E3F2DD")
