@@ -123,8 +123,12 @@ def censored_estimate(times, suspended, threshold, method, shape=None, model="ga
     failures = int((~flags).sum())
     if failures < FAILURES_NEEDED[method]:
         raise ValueError(failures_message(method, failures))
-    data = _prefix_data(x, flags, np.array([x.size]), model)
-    shape_value, log_scale, sigma2 = _model_fit(data, threshold, method, shape, model)
+    if (model, method) in _CLOSED_FORMS:
+        log_scale, sigma2 = _CLOSED_FORMS[model, method](x, flags, np.array([x.size]), float(shape), threshold)
+        shape_value = np.array([float(shape)])
+    else:
+        data = _prefix_data(x, flags, np.array([x.size]), model)
+        shape_value, log_scale, sigma2 = _model_fit(data, threshold, method, shape, model)
     lifetime = get_model(model)
     if not (np.isfinite(log_scale[0]) and np.isfinite(sigma2[0])):
         raise ValueError(f"{method}: the {lifetime.title} likelihood of these failures and suspensions has no "
@@ -255,6 +259,10 @@ _FITS = {"gamma": _gamma_fit, **{name: partial(_log_location_fit, family=family)
                                  for name, family in _log_location.FAMILIES.items()}}
 
 
+# Estimates with a closed form from running sums: (times, suspended, prefixes, shape, threshold) -> (log scale, σ̂²)
+_CLOSED_FORMS = {("weibull", "known-shape"): _log_location.weibull_known_shape_prefixes}
+
+
 def _stop_condition(n, factor, sigma2):
     with np.errstate(invalid="ignore"):
         return (n >= factor * sigma2) & np.isfinite(sigma2)
@@ -292,6 +300,8 @@ class CensoredRule:
         _, x, flags, _ = sums
         if self.method == "pass-fail":
             return regularized_sigma2(product_limit(x, flags, threshold, prefixes=n))
+        if (self.model, self.method) in _CLOSED_FORMS:
+            return _CLOSED_FORMS[self.model, self.method](x, flags, n, float(shape), threshold)[1]
         out = np.empty(n.size)
         suspended = np.unique(x[: n.max()][flags[: n.max()]]).size
         width = max(1, int(n.max()) + suspended if self.model in _log_location.FAMILIES else suspended)

@@ -12,9 +12,10 @@ survival function of Z); in (μ, α = log b), for a term T(z),
 
 Both standard laws have log-concave g and Ḡ, so the log-likelihood is
 concave in μ for a known b: the known-shape estimate solves one monotone
-equation (for the Weibull in closed form: with β known, X^β is exponential
-and η̂^β = Σ t^β / r over every unit, failed or suspended, r the failures,
-the total time on test in β-th powers over the number of failures). With
+equation, for the Weibull in closed form (``weibull_known_shape_prefixes``:
+with β known, X^β is exponential and η̂^β = Σ t^β / r over every unit, failed
+or suspended, r the failures, the total time on test in β-th powers over the
+number of failures). With
 both parameters free, a damped Newton iteration in (μ, α) with step halving
 finds the maximum.
 
@@ -146,8 +147,6 @@ def fit_known_shape(family, failures, suspensions, shape, iterations=100):
     """μ̂ for a known shape; NaN where there is no failure."""
     r = failures[1].sum(axis=-1)
     log_width = np.log(np.broadcast_to(family.width_from_shape(shape), r.shape)).astype(float)
-    if family is _ExtremeValue:
-        return _weibull_location(failures, suspensions, np.exp(-log_width), r)
     location, _ = _start(failures, suspensions)
     active = r > 0
     for _ in range(iterations):
@@ -160,15 +159,23 @@ def fit_known_shape(family, failures, suspensions, shape, iterations=100):
     return np.where(r > 0, location, np.nan)
 
 
-def _weibull_location(failures, suspensions, beta, r):
-    """log η̂ = (1/β) log(Σ t^β / r): the total time on test in β-th powers over the failures."""
-    times = np.concatenate([failures[0], suspensions[0]], axis=-1)
-    weights = np.concatenate([failures[1], suspensions[1]], axis=-1)
-    b = beta[..., None]
-    top = np.max(np.where(weights > 0, b * times, -np.inf), axis=-1, keepdims=True)
+def weibull_known_shape_prefixes(times, suspended, prefixes, beta, threshold):
+    """(log η̂, σ̂²) of the first n units for each n, from running sums: O(n) for the whole log.
+
+    η̂^β = Σ t^β / r over the first n units (r failures), J_μμ = β² r at the
+    estimate, and with w = (c/η̂)^β, ∂ log q/∂μ = β w/(1 - p), so
+    σ̂² = n w² / ((1 - p)² r). NaN where there is no failure yet.
+    """
+    log_t = np.log(np.asarray(times, dtype=float))
+    top = float(log_t.max()) if log_t.size else 0.0
+    power_sums = np.cumsum(np.exp(beta * (log_t - top)))[prefixes - 1]
+    r = np.cumsum(~np.asarray(suspended, dtype=bool))[prefixes - 1].astype(float)
     with np.errstate(divide="ignore", invalid="ignore"):
-        power_sum = np.where(weights > 0, weights * np.exp(b * times - top), 0.0).sum(axis=-1)
-        return np.where(r > 0, (top[..., 0] + np.log(power_sum) - np.log(r)) / beta, np.nan)
+        location = (np.log(power_sums) + beta * top - np.log(r)) / beta
+        log_w = beta * (np.log(threshold) - location)
+        w = np.exp(log_w)
+        sigma2 = prefixes * w * w / (np.expm1(-w) ** 2 * r)
+    return np.where(r > 0, location, np.nan), np.where(r > 0, sigma2, np.nan)
 
 
 def fit_shape_and_scale(family, failures, suspensions, iterations=200):
