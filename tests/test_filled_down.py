@@ -21,6 +21,7 @@ from hypothesis import strategies as st
 from scipy import special, stats
 
 import tailstop.sheet  # noqa: F401 - registers every formula
+from test_formula_boundary import same_log
 from tailstop.core.accuracy import critical_value
 from tailstop.sheet.cells import ColumnPrefixes, read_log_cells
 from tailstop.sheet.filled_down import filled_down, takes_a_log_first
@@ -34,15 +35,6 @@ FILLED_DOWN = [name for name in FORMULAS if takes_a_log_first(name)]
 
 def typed(values):
     return [(type(value), value) for value in values]
-
-
-def same_log(first, second):
-    for field in first.__dataclass_fields__:
-        a, b = getattr(first, field), getattr(second, field)
-        if isinstance(a, np.ndarray):
-            assert a.dtype == b.dtype and np.array_equal(a, b), field
-        else:
-            assert (type(a), a) == (type(b), b), field
 
 
 log_cells = st.one_of(
