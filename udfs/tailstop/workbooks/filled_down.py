@@ -48,7 +48,6 @@ _CELL = re.compile(r"^\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)$")
 # guarded so that a spreadsheet without the add-in shows it too; computed as the call inside
 _BLANK_GUARD = re.compile(r'^=\s*IF\(\s*ISBLANK\(\s*\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)\s*\)\s*,\s*""\s*,'
                           r"\s*(?P<call>.*)\)\s*$", re.S)
-GUARDED = {"STOP_DECISION"}  # formulas whose value on a blank last row is "" (the guard changes nothing)
 # placeholder the engine holds for a taken-out cell until its value is known
 _PLACEHOLDER = ""
 
@@ -80,6 +79,8 @@ class FilledColumn:
     arguments: tuple
     cells: list = field(default_factory=list)
     constants: dict = field(default_factory=dict)
+    # cells written =IF(ISBLANK(<last cell of the range>),"",<the call>): blank where that cell is
+    guarded: set = field(default_factory=set)
     # False when no formula of the book can read the column's cells
     read: bool = True
 
@@ -149,14 +150,13 @@ def _recognise(cell, prefixes, eligible, constants):
     span = _RANGE.match(arguments[0])
     if span is None or span["c1"].upper() != span["c2"].upper() or int(span["r2"]) < int(span["r1"]):
         return None
-    if guard and (name not in GUARDED or (guard["column"].upper(), int(guard["row"])) != (span["c2"].upper(),
-                                                                                          int(span["r2"]))):
-        return None
+    if guard and (guard["column"].upper(), int(guard["row"])) != (span["c2"].upper(), int(span["r2"])):
+        return None  # the guard must test the last cell of the range
     rest = tuple(arguments[1:])
     for text in rest:
         if not text or not (_CELL.match(text) or _constant(text, constants) is not None):
             return None
-    return name, span["c1"].upper(), int(span["r1"]), int(span["r2"]), rest
+    return name, span["c1"].upper(), int(span["r1"]), int(span["r2"]), rest, guard is not None
 
 
 def take_out(book, prefixes, eligible):
@@ -182,11 +182,13 @@ def take_out(book, prefixes, eligible):
             recognised = _recognise(cell, prefixes, eligible, constants)
             if recognised is None:
                 continue
-            name, column, first_row, last_row, arguments = recognised
+            name, column, first_row, last_row, arguments, guarded = recognised
             key = (sheet.title, name, column, first_row, arguments)
             if key not in found:
                 found[key] = FilledColumn(sheet.title, name, column, first_row, arguments)
             found[key].cells.append((cell.coordinate, last_row))
+            if guarded:
+                found[key].guarded.add(cell.coordinate)
     columns = [column for column in found.values() if len(column.cells) >= MIN_CELLS]
     columns = _independent(columns)
     for column in columns:
@@ -232,6 +234,10 @@ def _engine_value(solution, node):
     if ranges is None or not hasattr(ranges, "value"):
         return schedula.EMPTY
     return np.asarray(ranges.value, dtype=object).item(0)
+
+
+def _is_blank_to_the_engine(solution, node):
+    return _engine_value(solution, node) is schedula.EMPTY
 
 
 def _inputs(column, solution, book_context, spec, to_cells):
@@ -286,7 +292,9 @@ def put_back(model, solution, columns, book_context, functions, to_cells, to_eng
         first = column.first_row
         values = filled_down(column.name, rows, [end - first + 1 for _, end in column.cells], arguments)
         prefix = _node_prefix(book_context, column.sheet)
-        for (coordinate, _), value in zip(column.cells, values):
+        for (coordinate, end), value in zip(column.cells, values):
+            if coordinate in column.guarded and _is_blank_to_the_engine(solution, f"{prefix}{column.column}{end}"):
+                value = ""  # ISBLANK is true only for a cell the engine holds nothing for ("" is text)
             given[prefix + coordinate] = replace_empty(to_engine(value))
     if not any(column.read for column in columns):
         return solution, given
