@@ -283,3 +283,16 @@ def test_fit_check_tells_the_models_apart():
     x = lognormal.draw(rng, 1.2, 100.0, 300)
     assert weibull.fit_pvalue(x, samples=199) < 0.05
     assert lognormal.fit_pvalue(x, samples=199) > 0.05
+
+
+def test_running_fit_of_many_logs_equals_one_log_at_a_time():
+    # check value: running_fit (the one-log path, itself checked against direct fits above) on each row
+    rng = np.random.default_rng(12)
+    x = 100.0 * rng.weibull(1.5, (30, 120))
+    x[3, :25] = 7.0  # a log whose first 25 units are equal: no shape until the 26th
+    shapes, log_scales = weibull.running_fit_rows(x)
+    for row in range(x.shape[0]):
+        one_shape, one_scale = weibull.running_fit(x[row])
+        assert np.array_equal(np.isfinite(shapes[row]), np.isfinite(one_shape))
+        assert np.nanmax(np.abs(shapes[row] - one_shape) / one_shape) < 1e-12
+        assert np.nanmax(np.abs(log_scales[row] - one_scale)) < 1e-12
