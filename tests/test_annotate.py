@@ -146,7 +146,7 @@ def test_decision_column_and_block_follow_the_rule_and_the_interval(log_path):
     assert decisions == expected
     block = {sheet.cell(row, 10).value: sheet.cell(row, 11).value for row in range(1, 40)}
     assert block["Units used, N"] == stop
-    assert block["Log rows used (down to the STOP)"] == stop
+    assert block["Log rows used, counted from row 2 (down to the STOP)"] == stop
     # check value: the pass-fail estimate is the share of units beyond the threshold (counted here)
     share = sum(v > THRESHOLD for v in lifetimes[:stop]) / stop
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(share, rel=1e-15)

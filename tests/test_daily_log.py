@@ -348,3 +348,41 @@ def test_a_unit_typed_below_a_live_log_is_decided_and_counted(tmp_path, streamin
     # the pass-fail estimate is the share of units beyond the threshold, counted here
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(
         sum(value > THRESHOLD for value in hours) / 61, rel=1e-15)
+
+
+# --------------------------------------------------------------------------- the block when the rule has not stopped
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_bounds_say_the_accuracy_is_not_reached_before_the_stop(tmp_path, streaming, live):
+    from tailstop.workbooks.recalc import evaluate_workbook
+
+    hours = bearing_hours(40)
+    path = bearing_log(tmp_path / "bearing.xlsx", hours, average=False)
+    strict = RulePlan.checked(THRESHOLD, 1.2, 0.95, PILOT)  # odds within 1.2: no STOP in 40 units
+    assert rule_stop(hours, THRESHOLD, 1.2, 0.95, PILOT) is None  # the rule written out plainly (METHOD.md §5)
+    result = annotate(path, column="C", plan=strict, out=tmp_path / "out.xlsx", live=live)
+    shown = openpyxl.load_workbook(result.path, data_only=True)[SHEET]
+    block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
+    for label in ("p, lower bound", "p, upper bound", "Odds, lower bound (odds/d)", "Odds, upper bound (odds*d)"):
+        assert block[label] == "accuracy not reached (no STOP yet): no guaranteed bound"
+    # the rows used are counted from the log's first sheet row, N and the units needed on the same units
+    assert block["Log rows used, counted from row 4 (down to the STOP)"] == 42  # 40 units and two blank rows
+    assert block["Units used, N"] == 40
+    from tailstop.sheet import UNITS_NEEDED_NOW
+
+    assert block["Units the accuracy needs, judged by the N units used"] == UNITS_NEEDED_NOW(
+        [[value] for value in hours], THRESHOLD, 1.2, 0.95)
+    if live:  # the engine computes what was stored
+        computed = evaluate_workbook(result.path)
+        for row in range(1, 30):
+            stored = shown.cell(row, 10).value
+            engine = computed.get((SHEET.upper(), f"J{row}"))
+            if isinstance(stored, float):
+                assert engine == pytest.approx(stored, rel=1e-12), row
+            elif stored not in (None, ""):
+                assert engine == stored, row
+    stopped = annotate(path, column="C", plan=the_plan(), out=tmp_path / "stopped.xlsx", live=live)
+    shown = openpyxl.load_workbook(stopped.path, data_only=True)[SHEET]
+    block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
+    assert isinstance(block["p, lower bound"], float)  # at the STOP the interval is the guaranteed one

@@ -425,16 +425,16 @@ def _analyse(log, values, plan):
     decisions = [row[0] for row in result]
     decisions += [""] * (len(values) - len(decisions))
     stop_offset = decisions.index("STOP") if "STOP" in decisions else None
-    rows_used = len(values) if stop_offset is None else stop_offset + 1
+    filled = len(values)
+    while filled and values[filled - 1] is None:  # empty rows a live log keeps ready below its last unit
+        filled -= 1
+    rows_used = filled if stop_offset is None else stop_offset + 1
     used = _as_range(values[:rows_used])
     reading = cells.read_log_cells(column)
     units_used = int((reading.rows < rows_used).sum())
     if units_used < MIN_PILOT:
         raise LogProblem(f"{log.text()} holds {units_used} unit{'s' if units_used != 1 else ''}; "
                          f"an estimate needs at least {MIN_PILOT}")
-    filled = len(values)
-    while filled and values[filled - 1] is None:  # empty rows a live log keeps ready below its last unit
-        filled -= 1
     last_decision = _formula("STOP_DECISION")(column[:filled], *arguments)
     figures = _figures(used, column, plan)
     survivors = reading.survivors[: units_used] if reading.survivors[: units_used].any() else None
@@ -470,7 +470,7 @@ def _figures(used, column, plan):
     bounds = _formula("TAIL_PROB_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape, plan.model)
     odds_bounds = _formula("TAIL_ODDS_BOUNDS")(used, plan.threshold, plan.accuracy, plan.method, plan.shape,
                                                plan.model)
-    needed = _formula("UNITS_NEEDED_NOW")(column, plan.threshold, plan.accuracy, plan.confidence, plan.method,
+    needed = _formula("UNITS_NEEDED_NOW")(used, plan.threshold, plan.accuracy, plan.confidence, plan.method,
                                           plan.shape, plan.model)
     return {
         "estimate": estimate,
@@ -500,7 +500,7 @@ _INPUTS = (
 _OUTPUTS = (
     # key, label, number format
     ("last_decision", "Decision after the last row", None),
-    ("rows_used", "Log rows used (down to the STOP)", "0"),
+    ("rows_used", "Log rows used, counted from row {first} (down to the STOP)", "0"),
     ("units_used", "Units used, N", "0"),
     ("failures", "  of which failed", "0"),
     ("suspended", "  of which suspended (marked +)", "0"),
@@ -510,7 +510,7 @@ _OUTPUTS = (
     ("odds", "Odds p/(1-p)", ODDS_FORMAT),
     ("odds_low", "Odds, lower bound (odds/d)", ODDS_FORMAT),
     ("odds_high", "Odds, upper bound (odds*d)", ODDS_FORMAT),
-    ("units_needed", "Units the accuracy needs, by all units so far", "0"),
+    ("units_needed", "Units the accuracy needs, judged by the N units used", "0"),
 )
 
 
@@ -577,11 +577,11 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
     used = f"INDEX({whole},1):INDEX({whole},{a('rows_used')})"
     method_args = f"{a('method')},{a('shape')},{a('model')}"
     rule = decision_rule(layout)
-    return {
+    last_filled = f'MAX(IFERROR(MATCH(9.99E+307,{whole}),0),IFERROR(MATCH(REPT("z",255),{whole}),0))'
+    return _guarded_bounds({
         # the log down to its last filled row (the last number's or text's position): the decision after it
-        "last_decision": f'=STOP_DECISION(INDEX({whole},1):INDEX({whole},MAX(IFERROR(MATCH(9.99E+307,{whole}),0),'
-                         f'IFERROR(MATCH(REPT("z",255),{whole}),0))),{rule})',
-        "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),ROWS({whole}))',
+        "last_decision": f"=STOP_DECISION(INDEX({whole},1):INDEX({whole},{last_filled}),{rule})",
+        "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),{last_filled})',
         "units_used": f"=COUNTA({used})",
         # a failure is a number, a suspended unit the text 1200+
         "failures": f"=COUNT({used})",
@@ -592,13 +592,27 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
         "odds": f'=IFERROR({a("estimate")}/(1-{a("estimate")}),"")',
         "odds_low": f'=IFERROR(INDEX(TAIL_ODDS_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,1),"")',
         "odds_high": f'=IFERROR(INDEX(TAIL_ODDS_BOUNDS({used},{a("threshold")},{a("accuracy")},{method_args}),1,2),"")',
-        "units_needed": f"=UNITS_NEEDED_NOW({whole},{a('threshold')},{a('accuracy')},{a('confidence')},{method_args})",
+        "units_needed": f"=UNITS_NEEDED_NOW({used},{a('threshold')},{a('accuracy')},{a('confidence')},{method_args})",
         "note": lambda line: f'=IFERROR(INDEX(TAIL_METHOD_NOTES({used},{a("threshold")},{method_args}),{line},1),"")',
-    }
+    }, decisions)
+
+
+# what the bounds rows say while the rule has not stopped: q/d and q*d are no guaranteed interval yet
+NOT_REACHED = "accuracy not reached (no STOP yet): no guaranteed bound"
+_BOUNDS = ("p_low", "p_high", "odds_low", "odds_high")
+
+
+def _guarded_bounds(formulas, decisions):
+    """The bounds formulas showing ``NOT_REACHED`` while the decision column holds no STOP."""
+    for key in _BOUNDS:
+        formulas[key] = f'=IF(ISNUMBER(MATCH("STOP",{decisions},0)),{formulas[key][1:]},"{NOT_REACHED}")'
+    return formulas
 
 
 def _output_values(analysis: LogAnalysis, live: bool):
     values = dict(analysis.figures)
+    if not analysis.stopped:
+        values.update(dict.fromkeys(_BOUNDS, NOT_REACHED))
     values["last_decision"] = analysis.last_decision
     values["rows_used"] = analysis.rows_used
     values["units_used"] = analysis.filled_used if live else analysis.units_used
@@ -629,7 +643,7 @@ def write_estimate_block(sheet, layout: BlockLayout, log: LogRange, decision_col
     formulas = _block_formulas(layout, log, decision_column)
     values = _output_values(analysis, live)
     for key, label, number_format in _OUTPUTS:
-        _label(sheet, layout.cells[key], label)
+        _label(sheet, layout.cells[key], label.format(first=log.first_row))
         _put(sheet, layout.cells[key], formulas[key] if live else None, values[key], cached)
         if number_format:
             sheet[layout.cells[key]].number_format = number_format
