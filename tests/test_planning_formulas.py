@@ -145,9 +145,12 @@ def test_bad_input_gets_a_message(call, text):
 
 
 def test_every_call_is_bounded():
-    # too many units for an exact computation in a cell
-    result = PLAN_SUMMARY_FROM_P(0.5, 1.01, 0.95, 10)
+    # too many units for an exact computation in a cell, within the command's bound
+    result = PLAN_SUMMARY_FROM_P(0.5, 1.03, 0.95, 10)
     assert is_message(result) and "10,000 units" in result and "tailstop plan" in result
+    # beyond the command's bound too: the cell says what is known instead of sending users to it
+    result = PLAN_SUMMARY_FROM_P(0.5, 1.01, 0.95, 10)
+    assert is_message(result) and "tailstop plan" not in result and "a fixed-size test of 155,197 units" in result
     # replications × units beyond the cap of a simulating cell: the message says how many are allowed
     result = PLAN_SUMMARY(1000, 2, 600, 1.1, 0.95, 10, "known-shape", 50_000)
     assert is_message(result) and "capped at 20,000,000 for known-shape" in result and "use at most" in result
@@ -158,3 +161,26 @@ def test_every_call_is_bounded():
     table = as_dict(PLAN_SUMMARY(1000, 2, 600, 1.12, 0.95, 10, "fitted-shape"))
     assert table["replications"] * (table["fixed-size units n*"] + 400) <= 4_000_000 * 1.01
     assert 100 <= table["replications"] < 10_000
+
+
+@pytest.mark.parametrize("call", [
+    lambda: PLAN_SUMMARY_FROM_P(0.001, 1.5, 0.95, 10),          # beyond a cell, within the command
+    lambda: PLAN_SUMMARY_FROM_P(1e-8, 1.5, 0.95, 10),           # beyond both
+    lambda: sheet.PLAN_SUMMARY(12921, 2, 600, 1.5, 0.95, 10),   # p ≈ 1e-8 from a gamma guess
+    lambda: sheet.PLAN_COVERAGE(1000, 2, 600, 1.001, 0.95, 10, "known-shape"),
+    lambda: sheet.PLAN_COVERAGE(1000, 2, 600, 1.005, 0.95, 10, "fitted-shape"),
+])
+def test_a_cell_suggests_the_command_only_where_it_answers(call):
+    from tailstop.core import operating
+
+    text = call()
+    assert isinstance(text, str) and text.startswith("#TAILSTOP!")
+    suggests = "tailstop plan" in text
+    # the command's own bound decides: its refusal (PlanTooLarge) is what a cell must not send users to
+    refusal = "beyond the 30 s a plan may take" in text
+    assert suggests != refusal, text
+    if refusal:
+        # what is known without computing, and (where there is one) the change that makes it answerable
+        assert "a fixed-size test of" in text and "E[N] ≈ n*" in text
+    else:
+        assert operating.exact_work(0.001, 1.5, 0.95, 10).seconds <= operating.COMMAND_SECONDS

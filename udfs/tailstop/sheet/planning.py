@@ -4,7 +4,10 @@ Every call is bounded in time: the exact pass-fail figures are computed for
 plans up to ``EXACT_UNITS_LIMIT`` units, the simulated ones for at most
 ``REPLICATIONS_LIMIT`` replications and at most ``WORK_LIMIT[method]``
 replications × units per run. Beyond that the formula answers with a ``#TAILSTOP!``
-text saying what to change (or to use ``tailstop plan`` at the command line).
+text saying what to change; it suggests ``tailstop plan`` only where the
+command answers the same question within its own bound
+(``core.operating.work.COMMAND_SECONDS``), and otherwise says what is known
+without computing (n*, the fixed-size plan, E[N] by the asymptotics).
 """
 from __future__ import annotations
 
@@ -13,7 +16,17 @@ import math
 from ..core import accuracy as _accuracy
 from ..core import guaranteed
 from ..core.methods import METHOD_NAMES, PASS_FAIL_METHODS, pass_fail_sigma2_from_p
-from ..core.operating import DEFAULT_SEED, operating_characteristics, pass_fail_exact
+from ..core.models import get_model
+from ..core.operating import (
+    COMMAND_SECONDS,
+    DEFAULT_SEED,
+    PlanTooLarge,
+    check_work,
+    exact_work,
+    operating_characteristics,
+    pass_fail_exact,
+    simulation_work,
+)
 from ..core.operating.time_terminated import simulate_with_test_time
 from . import cells
 from .estimate import HELP, clean_model, clean_shape_and_scale, clean_test_time, planning_sigma2
@@ -55,11 +68,23 @@ def _pilot(value):
     return cells.pilot(value, maximum=EXACT_UNITS_LIMIT)
 
 
-def _exact_limit(n_star, pilot):
+def _command_can(estimate):
+    """The advice to run `tailstop plan`, only where the command answers the same question within its bound."""
+    return ", or run `tailstop plan`" if estimate.seconds <= COMMAND_SECONDS else ""
+
+
+def _exact_limit(n_star, pilot, p, accuracy, confidence):
     if max(n_star, pilot) > EXACT_UNITS_LIMIT:
+        estimate = exact_work(p, accuracy, confidence, pilot, n_star)
+        if estimate.seconds > COMMAND_SECONDS:
+            # not even the command can: say what is known without computing, and what to change
+            try:
+                pass_fail_exact(p, accuracy, confidence, pilot)
+            except PlanTooLarge as refused:
+                raise cells.InputError(str(refused)) from None
         raise cells.InputError(
             f"this plan needs {cells.units_text(max(n_star, pilot))}; a cell computes plans up to "
-            f"{EXACT_UNITS_LIMIT:,} units: ask for less accuracy, or run `tailstop plan`")
+            f"{EXACT_UNITS_LIMIT:,} units: ask for less accuracy{_command_can(estimate)}")
 
 
 def _budget(method, model, test_time=None):
@@ -73,7 +98,7 @@ def _budget(method, model, test_time=None):
     return MODEL_DEFAULT_REPLICATIONS, MODEL_WORK_LIMIT[method], MODEL_RUN_OVERHEAD[method]
 
 
-def _replications(value, method, n_star, pilot, model="gamma", test_time=None):
+def _replications(value, method, n_star, pilot, model="gamma", test_time=None, sigma2=None, confidence=None):
     units = max(n_star, pilot)
     default, limit, overhead = _budget(method, model, test_time)
     affordable = int(limit // (units + overhead))
@@ -83,9 +108,16 @@ def _replications(value, method, n_star, pilot, model="gamma", test_time=None):
     if cells.is_missing(value):
         replications = min(default, affordable)
         if replications < 100:
+            estimate = simulation_work(method, n_star, pilot, default, model)
+            if estimate.seconds > COMMAND_SECONDS and sigma2 is not None:
+                try:
+                    check_work(estimate, COMMAND_SECONDS, sigma2=sigma2, confidence=confidence)
+                except PlanTooLarge as refused:
+                    raise cells.InputError(str(refused)) from None
+            command = _command_can(estimate)
             raise cells.InputError(
                 f"this plan needs {cells.units_text(units)} per run; a cell simulates at most "
-                f"{limit:,} replications × units for {label}: ask for less accuracy, or run `tailstop plan`")
+                f"{limit:,} replications × units for {label}: ask for less accuracy{command}")
         return replications
     replications = cells.whole_number(value, "replications", minimum=1, maximum=REPLICATIONS_LIMIT)
     if replications > affordable:
@@ -118,9 +150,10 @@ def plan_from_cells(threshold, shape, scale, accuracy, confidence, pilot, method
     a, s, model_name = clean_shape_and_scale(shape, scale, model)
     stop = clean_test_time(test_time, c, name)
     if name in PASS_FAIL_METHODS:
-        _exact_limit(n_star, m)
+        p = float(get_model(model_name).tail_probability(c, a, s).p)
+        _exact_limit(n_star, m, p, d, level)
         return operating_characteristics(c, a, s, d, level, m, name, model=model_name)
-    count = _replications(replications, name, n_star, m, model_name, stop)
+    count = _replications(replications, name, n_star, m, model_name, stop, sigma2, level)
     if stop is not None:
         return simulate_with_test_time(c, a, s, d, level, m, name, stop, replications=count, seed=_seed(seed),
                                        model=model_name)
@@ -226,5 +259,5 @@ def PLAN_SUMMARY_FROM_P(p_guess, accuracy, confidence, pilot):
     d, level = cells.accuracy(accuracy), cells.confidence(confidence)
     n_star = float(_accuracy.units_for_accuracy(pass_fail_sigma2_from_p(p), d, level))
     m = _pilot(pilot)
-    _exact_limit(n_star, m)
+    _exact_limit(n_star, m, p, d, level)
     return summary_table(pass_fail_exact(p, d, level, m), accuracy=d)

@@ -36,6 +36,7 @@ from ..models.gamma.tail import tail_probability  # noqa: F401  (the gamma tail,
 from .calibration import calibrate
 from .exact import pass_fail_exact
 from .monte_carlo import reference_simulation, simulate
+from .work import CELL_SECONDS, COMMAND_SECONDS, PlanTooLarge, WorkEstimate, check_work, exact_work, simulation_work
 from .results import (
     DEFAULT_SEED,
     QUANTILE_LEVELS,
@@ -60,6 +61,13 @@ __all__ = [
     "compare_methods",
     "default_n_max",
     "confidence_for_z",
+    "CELL_SECONDS",
+    "COMMAND_SECONDS",
+    "PlanTooLarge",
+    "WorkEstimate",
+    "check_work",
+    "exact_work",
+    "simulation_work",
 ]
 
 # --------------------------------------------------------------------------- dispatch and comparison

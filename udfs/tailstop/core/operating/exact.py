@@ -10,6 +10,7 @@ from scipy import stats
 from .. import accuracy as _accuracy
 from .. import rule
 from ..methods import PASS_FAIL_METHODS, SufficientStatistics, estimate_from_statistics
+from .work import COMMAND_SECONDS, check_work, exact_work
 from .results import (
     QUANTILE_LEVELS,
     OperatingCharacteristics,
@@ -29,7 +30,7 @@ _EXACT_TOLERANCE = 1e-12
 
 
 def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1, stop_z=None,
-                    progress=None, method="pass-fail") -> OperatingCharacteristics:
+                    progress=None, method="pass-fail", work_bound=COMMAND_SECONDS) -> OperatingCharacteristics:
     """Exact operating characteristics of the pass-fail rule by forward propagation of (n, S).
 
     Parameters
@@ -51,6 +52,10 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
         Called with the fraction done (0..1).
     method : {'pass-fail', 'pass-fail-exact'}
         Whose stopping rule: pass-fail-exact has its own tuned boundary (and no ``stop_z``).
+    work_bound : float
+        Seconds the computation may take by its estimate (``work.exact_work``,
+        made before it starts); beyond it ``work.PlanTooLarge`` is raised with
+        what is known without computing. ``math.inf`` for no bound.
 
     Notes
     -----
@@ -69,6 +74,9 @@ def pass_fail_exact(p, accuracy, confidence, pilot, *, n_max=None, check_every=1
         raise ValueError(f"the probability must be strictly between 0 and 1 (got {p!r})")
     pilot = int(pilot)
     n_star = float(_accuracy.units_for_accuracy(1.0 / (p * (1.0 - p)), accuracy, confidence))
+    stop_confidence = _stop_confidence(confidence, stop_z)
+    check_work(exact_work(p, accuracy, stop_confidence, pilot, n_star, n_max), work_bound,
+               sigma2=1.0 / (p * (1.0 - p)), confidence=confidence, p=p, accuracy=accuracy, pilot=pilot)
     adaptive = n_max is None
     cap = max(default_n_max(n_star, pilot), 20 * math.ceil(n_star) + 1000) if adaptive else int(n_max)
     if cap < pilot:
@@ -149,26 +157,84 @@ class _Propagation:
 
 
 class _PassFailStopSet:
-    """``rule.stops`` on a block of the (n, S) grid, served row by row."""
+    """``rule.stops`` on a block of the (n, S) grid, served row by row, as one interval of S per n.
+
+    The pass-fail rule stops where S (n - S) >= B n, 0 < S < n: its σ̂² is a
+    monotone function of the whole number S (n - S), so for each n the stop set
+    is an interval of S. Its ends are found from the quadratic and then settled
+    by asking ``rule.stops`` itself about the S around each end; the first
+    block is also evaluated on the full grid, and if the two ever disagree
+    (the rule is no longer an interval) every block is evaluated in full.
+    """
+
+    _AROUND = 3  # S asked about on either side of each end of the interval
 
     def __init__(self, accuracy, stop_confidence, pilot, check_every, method="pass-fail"):
         self.arguments = (1.0, accuracy, stop_confidence, pilot, method)
         self.check_every = check_every
+        self.factor = rule.boundary_factor(accuracy, stop_confidence)
         self.first_n = self.first_k = 0
-        self.grid = np.zeros((0, 0), bool)
+        self.grid = None
+        self.ends = None
+        self.full = False
+        self.checked = False
+
+    def _stops(self, n_grid, k_grid):
+        statistics = SufficientStatistics(n=n_grid, sum_x=np.zeros(n_grid.shape), log_ratio=np.zeros(n_grid.shape),
+                                          exceedances=k_grid)
+        return rule.stops(statistics, *self.arguments, check_every=self.check_every) & (k_grid <= n_grid)
+
+    def _full(self, first_n, end_n, low, high):
+        n = np.arange(first_n, end_n)[:, None]
+        k = np.arange(low, high + (end_n - first_n) + 1)[None, :]
+        return self._stops(*np.broadcast_arrays(n, k))
+
+    def _interval_ends(self, first_n, end_n):
+        """(lowest, highest) stopping S per n of the block; lowest > highest where none stops."""
+        n = np.arange(first_n, end_n, dtype=float)
+        with np.errstate(invalid="ignore"):
+            half_width = np.sqrt(np.maximum(n * n / 4.0 - self.factor * n, 0.0))
+        guess_low = np.clip(np.ceil(n / 2.0 - half_width), 1, None).astype(np.int64)
+        offsets = np.arange(-self._AROUND, self._AROUND + 1)
+        n_int = n.astype(np.int64)[:, None]
+        around = guess_low[:, None] + offsets[None, :]
+        valid = (around >= 1) & (around <= n_int - 1)
+        says = self._stops(np.broadcast_to(n_int, around.shape), np.clip(around, 0, None)) & valid
+        found = says.any(axis=1)
+        first = np.argmax(says, axis=1)
+        # the end is settled only if the S just below it is asked about and does not stop
+        settled = ~found | (first > 0) | (around[:, 0] <= 1)
+        lowest = np.where(found, around[np.arange(n.size), first], n_int[:, 0])
+        highest = n_int[:, 0] - lowest  # S (n - S) is symmetric about n / 2
+        # no stop anywhere in the row: check the middle, where S (n - S) is largest
+        middle = np.maximum(n_int[:, 0] // 2, 1)
+        middle_says = self._stops(n_int[:, 0], middle)
+        if np.any(~found & middle_says) or not np.all(settled):
+            return None
+        return lowest, highest
 
     def evaluate(self, first_n, end_n, low, high):
         """Stop set for n in [first_n, end_n) and k in [low, high + rows]."""
-        n = np.arange(first_n, end_n)[:, None]
-        k = np.arange(low, high + (end_n - first_n) + 1)[None, :]
-        n_grid, k_grid = np.broadcast_arrays(n, k)
-        statistics = SufficientStatistics(n=n_grid, sum_x=np.zeros(n_grid.shape), log_ratio=np.zeros(n_grid.shape),
-                                          exceedances=k_grid)
-        self.grid = rule.stops(statistics, *self.arguments, check_every=self.check_every) & (k_grid <= n_grid)
         self.first_n, self.first_k = first_n, low
+        ends = None if self.full else self._interval_ends(first_n, end_n)
+        if ends is not None and not self.checked:
+            grid = self._full(first_n, end_n, low, high)
+            k = np.arange(low, high + (end_n - first_n) + 1)[None, :]
+            if not np.array_equal(grid, (k >= ends[0][:, None]) & (k <= ends[1][:, None])):
+                ends = None
+            self.checked = True
+        if ends is None:
+            self.full = True
+            self.grid, self.ends = self._full(first_n, end_n, low, high), None
+        else:
+            self.grid, self.ends = None, ends
 
     def row(self, n, low, high):
-        return self.grid[n - self.first_n, low - self.first_k: high - self.first_k + 1]
+        if self.ends is None:
+            return self.grid[n - self.first_n, low - self.first_k: high - self.first_k + 1]
+        k = np.arange(low, high + 1)
+        i = n - self.first_n
+        return (k >= self.ends[0][i]) & (k <= self.ends[1][i])
 
 
 def _pass_fail_covers(n, k, p, accuracy):

@@ -19,6 +19,7 @@ from ..models.gamma.fit import log_minus_digamma, shape_from_log_ratio
 from ..models.gamma.tail import tail_probability
 from ..models.gamma.variance import sigma2_fitted_shape
 from .model_simulation import simulate_model_runs
+from .work import COMMAND_SECONDS, check_work, simulation_work
 from .results import (
     DEFAULT_SEED,
     QUANTILE_LEVELS,
@@ -365,7 +366,8 @@ def _simulate_chunk(plan: _Plan, rng, count, screen, common_numbers=False):
 
 def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known-shape", *,
              replications=10_000, seed=DEFAULT_SEED, n_max=None, check_every=1, stop_z=None,
-             screen=True, common_numbers=False, progress=None, model=DEFAULT_MODEL) -> OperatingCharacteristics:
+             screen=True, common_numbers=False, progress=None, model=DEFAULT_MODEL,
+             work_bound=COMMAND_SECONDS) -> OperatingCharacteristics:
     """Monte Carlo operating characteristics of the stopping rule under a guessed lifetime model.
 
     Parameters
@@ -386,6 +388,9 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
         A run not stopped by n_max counts as "N > n_max" (default ``default_n_max``).
     stop_z : float, optional
         Critical value for the stopping boundary instead of z(confidence).
+    work_bound : float
+        Seconds the simulation may take by its estimate (``work.simulation_work``,
+        made before it starts); beyond it ``work.PlanTooLarge`` is raised.
     screen : bool
         known-shape and fitted-shape: call ``rule.stops`` only where a conservative lower
         bound on σ̂² allows STOP (same results, much faster; see ``_KnownShapeScreen``
@@ -423,6 +428,8 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
     n_max = default_n_max(n_star, pilot) if n_max is None else int(n_max)
     if n_max < pilot:
         raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
+    check_work(simulation_work(estimator.name, min(n_star, n_max), pilot, replications, lifetime.name), work_bound,
+               sigma2=sigma2, confidence=confidence)
     plan = _Plan(float(threshold), float(shape), float(scale), estimator.name, float(accuracy),
                  _stop_confidence(confidence, stop_z), int(pilot), n_max, int(check_every), p)
     if lifetime.name != DEFAULT_MODEL:

@@ -160,14 +160,47 @@ class MethodComparison:
     results: dict
 
     def table(self):
-        """Rows [label, value per method...] with standard errors as '± se' where simulated."""
+        """Rows [label, value per method...], '± se' where a simulated figure's standard error means something.
+
+        A quantile of N is a whole number whose order-statistic spread is
+        often 0: it is shown without an error. A simulated coverage from
+        fewer runs than a standard error of ±0.01 needs is flagged as rough.
+        """
         methods = list(self.results)
         rows = [["", *methods], ["figures", *(self.results[m].kind for m in methods)]]
         labels = [label for label, _, _ in self.results[methods[0]].figures()]
         by_method = {m: self.results[m].figures() for m in methods}
         for i, label in enumerate(labels):
-            rows.append([label, *(_format_figure(by_method[m][i][1], by_method[m][i][2]) for m in methods)])
+            row = [label]
+            for m in methods:
+                _, value, se = by_method[m][i]
+                if label.endswith("quantile"):
+                    se = None
+                text = _format_figure(value, se)
+                if label == "coverage" and rough_coverage(self.results[m]):
+                    text += f" (rough: {self.results[m].replications:,} runs)"
+                row.append(text)
+            rows.append(row)
         return rows
+
+
+def rough_coverage(result) -> bool:
+    """True for a simulated coverage whose standard error exceeds ±0.01 (too few runs).
+
+    The standard error is √(c (1 - c) / R) with c held inside [0.05, 0.95], so
+    that a coverage of exactly 1 (or 0) from a handful of runs, whose plain
+    standard error is 0, is flagged too (10 runs all covering: ±0.069).
+    """
+    if result.exact:
+        return False
+    c = min(max(result.coverage, 0.05), 0.95)
+    return math.sqrt(c * (1.0 - c) / result.replications) > 0.01
+
+
+def falls_short(result) -> bool:
+    """True when the coverage is below nominal by more than 0.005 (exact) or two standard errors (simulated)."""
+    margin = 0.005 if result.exact else 2.0 * result.coverage_se
+    return result.coverage < result.confidence - margin
 
 
 def _format_figure(value, se):
