@@ -169,7 +169,7 @@ def test_method_and_p_guess(capsys):
     header = table_rows(capsys.readouterr().out)[""]
     assert header.split() == ["known-shape"]
     assert main(["plan", "--p-guess", "0.3", "--accuracy", "1.5", "--method", "known-shape"]) == 1
-    assert "pass-fail only" in capsys.readouterr().err
+    assert "pass-fail and pass-fail-exact only" in capsys.readouterr().err
     assert main(["plan", "--accuracy", "1.5"]) == 1
     assert "--p-guess" in capsys.readouterr().err
 

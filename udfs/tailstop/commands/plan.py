@@ -171,6 +171,9 @@ def run(args, out=None, progress_stream=None):
     methods, plan, p = _methods_and_plan(args)
     if args.test_time is not None and (args.calibrate or args.png):
         raise ValueError("--test-time cannot be combined with --calibrate or --png yet")
+    left_out = args.test_time is not None and plan is not None and args.test_time < args.threshold
+    if left_out:
+        methods = tuple(m for m in methods if m not in EXACT_METHODS)
     if args.png:
         _require_matplotlib()
         _check_png(args.png, args.force)
@@ -192,7 +195,9 @@ def run(args, out=None, progress_stream=None):
         print(f"Plan: threshold {args.threshold:g}, {args.model} shape {args.shape:g}, scale {args.scale:g}; "
               f"odds within x{args.accuracy:g} at {args.confidence:g} confidence; pilot {args.pilot}", file=out)
         if args.test_time is not None:
-            print(f"Every unit still running at {args.test_time:g} is stopped there (a time-terminated test)", file=out)
+            print(f"Every unit still running at {args.test_time:g} is stopped there (a time-terminated test)"
+                  + ("; pass-fail is left out: it cannot see past a test time below the threshold" if left_out else ""),
+                  file=out)
         print(f"True probability beyond the threshold under the guess: "
               f"p = {float(get_model(args.model).tail_probability(args.threshold, args.shape, args.scale).p):.6g}",
               file=out)
