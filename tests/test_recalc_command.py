@@ -57,3 +57,25 @@ def test_in_place_and_out_together_are_refused(tmp_path, capsys):
     # nothing written anywhere: the book is byte for byte what it was, no other file, no backup
     assert book.read_bytes() == before
     assert sorted(path.name for path in tmp_path.iterdir()) == ["check.xlsx"]
+
+
+def test_a_range_formula_typed_into_one_cell_is_named(tmp_path, capsys):
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.title = "Check"
+    for row, value in enumerate([900.0, 1700.0, 2100.0, 400.0, 1600.0, 1800.0], start=1):
+        sheet.cell(row, 1, value)
+    sheet["C1"] = "=STOP_DECISION_COLUMN(A1:A6,1500,2,0.95,2)"  # plain: one cell
+    sheet["D1"] = ArrayFormula("D1:D6", "=STOP_DECISION_COLUMN(A1:A6,1500,2,0.95,2)")  # over the column
+    sheet["E1"] = '=INDEX(TAIL_PROB_BOUNDS(A1:A6,1500,2),1,2)'  # one element on purpose
+    book.save(tmp_path / "check.xlsx")
+    assert main(["recalc", str(tmp_path / "check.xlsx")]) == 0
+    out = capsys.readouterr().out
+    # with a pilot of 2 the first row's decision is PILOT (METHOD.md §5: no decision before the pilot)
+    stored = openpyxl.load_workbook(tmp_path / "check-recalc.xlsx", data_only=True)["Check"]
+    assert stored["C1"].value == "PILOT"
+    assert ("Check!C1: STOP_DECISION_COLUMN gives a column; typed into one cell it stores only its first value. "
+            "Enter it over a column as an array formula") in out
+    assert "Check!D1" not in out and "Check!E1" not in out

@@ -61,4 +61,15 @@ def run(args):
         print(f"  {sheet}!{cell}: {value}")
     if len(result.errors) > 20:
         print(f"  ... and {len(result.errors) - 20} more cells with errors")
+    _say_single_cell_ranges(result.path)
     return 0
+
+
+def _say_single_cell_ranges(path):
+    import openpyxl
+
+    from ..workbooks.array_hints import single_cell_ranges
+
+    for sheet, cell, name, shape in single_cell_ranges(openpyxl.load_workbook(path)):
+        print(f"  {sheet}!{cell}: {name} gives {shape}; typed into one cell it stores only its first value. "
+              f"Enter it over {shape} as an array formula (select the cells, type it, Ctrl+Shift+Enter)")
