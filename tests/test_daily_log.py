@@ -386,3 +386,24 @@ def test_bounds_say_the_accuracy_is_not_reached_before_the_stop(tmp_path, stream
     shown = openpyxl.load_workbook(stopped.path, data_only=True)[SHEET]
     block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
     assert isinstance(block["p, lower bound"], float)  # at the STOP the interval is the guaranteed one
+
+
+def test_an_array_formula_in_a_book_saved_by_libreoffice_recalculates(tmp_path, soffice):
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    from tailstop.workbooks.recalc import recalc
+
+    hours = bearing_hours()
+    path = bearing_log(tmp_path / "bearing.xlsx", hours, average=False)
+    book = openpyxl.load_workbook(path)
+    book[SHEET]["L1"] = ArrayFormula("L1:M1", f"=TAIL_PROB_BOUNDS(C4:C65,{THRESHOLD},{ACCURACY})")
+    book.save(path)
+    saved = convert_with_libreoffice(path, tmp_path / "lo")  # LibreOffice stores #NAME? in both cells
+    result = recalc(saved, tmp_path / "recalc.xlsx")
+    assert result.errors == []
+    shown = openpyxl.load_workbook(result.path, data_only=True)[SHEET]
+    # check value: METHOD.md §2, the pass-fail odds q = S/(n-S) and the interval [q/d, q d] on the p scale
+    beyond = sum(value > THRESHOLD for value in hours)
+    odds = beyond / (len(hours) - beyond)
+    assert shown["L1"].value == pytest.approx(odds / (ACCURACY + odds), rel=1e-12)
+    assert shown["M1"].value == pytest.approx(ACCURACY * odds / (1 + ACCURACY * odds), rel=1e-12)

@@ -209,12 +209,26 @@ def _calculate_with_filled_down_columns(path):
     """
     model = formulas.ExcelModel()
     book, context = model.add_book(path)
+    _clear_array_members(book)
     columns = filled_down.take_out(book, UDF_PREFIXES, _computes_filled_down)
     model.pushes(*book.worksheets, context=context)
     solution = model.finish().calculate()
     if not columns:
         return solution, {}
     return filled_down.put_back(model, solution, columns, context, _tailstop_formulas(), _to_cells, _to_engine)
+
+
+def _clear_array_members(book):
+    """Blank the cells an array formula fills, but its first, in the engine's copy of the book.
+
+    A program that does not know a formula stores its error in every cell of the array (LibreOffice saves
+    ``#NAME?`` there); read as constants, those would hide the array's own values.
+    """
+    for sheet in book.worksheets:
+        for cell in list(getattr(sheet, "_cells", {}).values()):
+            if isinstance(cell.value, ArrayFormula):
+                for member in _block(cell)[1:]:
+                    member.value = None
 
 
 def _computes_filled_down(name):
