@@ -78,6 +78,11 @@ def test_a_plan_beyond_any_test_is_not_printed_digit_by_digit(capsys):
     code, out, err = run(capsys, "plan", "--threshold", 100, "--shape", 1, "--scale", 1, "--accuracy", 1.5)
     assert "6.28e+44 units" in out + err
     assert not re.search(r"[0-9][0-9,]{20,}", out + err)
+    # p = exp(-20): pass-fail n* = 23.37 / 2.061e-9 = 1.134e10 units, within a test but beyond the 30 s bound of
+    # the exact computation: refused in words, the other methods still answer
+    code, out, err = run(capsys, "plan", "--threshold", 20, "--shape", 1, "--scale", 1, "--accuracy", 1.5,
+                         "--method", "pass-fail")
+    assert code == 0 and "pass-fail: not computed — this plan needs about 11,336,49" in out
 
 
 @pytest.mark.parametrize("lock", ["~$bench.xlsx", ".~lock.bench.xlsx#"])  # Excel's and LibreOffice's lock files

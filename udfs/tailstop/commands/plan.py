@@ -111,6 +111,20 @@ def _methods_and_plan(args):
     return methods, (args.threshold, args.shape, args.scale, args.accuracy, args.confidence, args.pilot), None
 
 
+def _beyond_any_test(plan):
+    """The refusal of a plan whose pass-fail unit count is beyond any test (UNITS_REQUIRED's text), or None."""
+    if plan is None:
+        return None
+    from ..sheet import FORMULAS
+    from ..sheet.cells import ERROR_PREFIX
+
+    threshold, shape, scale, accuracy, confidence, _ = plan
+    units = FORMULAS["UNITS_REQUIRED"](threshold, shape, scale, accuracy, confidence, "pass-fail")
+    if isinstance(units, str) and units.startswith(ERROR_PREFIX) and "more than any test can run" in units:
+        return units.removeprefix(ERROR_PREFIX).strip()
+    return None
+
+
 def _check_png(path, force):
     """Refuse a --png target before any computation: an existing file (without --force), a missing folder."""
     from pathlib import Path
@@ -169,6 +183,10 @@ def run(args, out=None, progress_stream=None):
     args.test_time = getattr(args, "test_time", None)
     args.model = getattr(args, "model", "gamma")
     methods, plan, p = _methods_and_plan(args)
+    beyond_any_test = _beyond_any_test(plan)
+    if beyond_any_test:
+        print(f"tailstop plan: {beyond_any_test}", file=sys.stderr)
+        return 1
     if args.test_time is not None and (args.calibrate or args.png):
         raise ValueError("--test-time cannot be combined with --calibrate or --png yet")
     left_out = args.test_time is not None and plan is not None and args.test_time < args.threshold
