@@ -184,3 +184,19 @@ def test_a_cell_suggests_the_command_only_where_it_answers(call):
         assert "a fixed-size test of" in text and "E[N] ≈ n*" in text
     else:
         assert operating.exact_work(0.001, 1.5, 0.95, 10).seconds <= operating.COMMAND_SECONDS
+
+
+def test_summary_says_when_the_coverage_falls_short_and_gives_the_calibrated_value():
+    from tailstop.core import operating
+
+    # check value: docs/method.md's table (exact, pass-fail): p = 0.01, d = 10, 95 % covers 0.904
+    table = as_dict(PLAN_SUMMARY_FROM_P(0.01, 10, 0.95, 10))
+    assert table["coverage short of nominal by"] == pytest.approx(0.95 - table["coverage"], abs=1e-15)
+    calibration = operating.calibrate(lambda z: operating.pass_fail_exact(0.01, 10.0, 0.95, 10, stop_z=z), 0.95)
+    assert table["calibrated critical value z'"] == pytest.approx(calibration.z_calibrated, rel=1e-12)
+    # check value: 2Φ(z') - 1 from scipy.stats.norm
+    assert table["confidence to give the decision formulas"] == pytest.approx(
+        2 * stats.norm.cdf(calibration.z_calibrated) - 1, rel=1e-12)
+    assert table["coverage at z'"] >= 0.95
+    # a plan that reaches its level has no such rows
+    assert "coverage short of nominal by" not in as_dict(PLAN_SUMMARY_FROM_P(0.5, 1.5, 0.95, 10))

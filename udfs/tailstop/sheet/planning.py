@@ -12,6 +12,7 @@ without computing (n*, the fixed-size plan, E[N] by the asymptotics).
 from __future__ import annotations
 
 import math
+import time
 
 from ..core import accuracy as _accuracy
 from ..core import guaranteed
@@ -27,6 +28,8 @@ from ..core.operating import (
     pass_fail_exact,
     simulation_work,
 )
+from ..core.operating import CELL_SECONDS, calibrate
+from ..core.operating.results import falls_short
 from ..core.operating.time_terminated import simulate_with_test_time
 from . import cells
 from .estimate import HELP, clean_model, clean_shape_and_scale, clean_test_time, planning_sigma2
@@ -206,7 +209,39 @@ def summary_table(result, model="gamma", test_time=None, accuracy=None):
         if error is not None:
             rows.append([f"{label}: MC std. error", _number_or_text(error)])
     rows.append(["nominal confidence", result.confidence])
-    return rows + _beside(result, accuracy)
+    return rows + _shortfall(result, accuracy) + _beside(result, accuracy)
+
+
+def _shortfall(result, accuracy):
+    """Rows saying, in numbers, that the coverage falls short, and (exact pass-fail) the calibrated z' that restores it.
+
+    Short means below nominal by more than 0.005 (exact) or two Monte Carlo
+    standard errors. The calibration is searched within the cell's time
+    bound; beyond it the row points to `tailstop plan --calibrate`.
+    """
+    if not falls_short(result):
+        return []
+    rows = [["coverage short of nominal by", result.confidence - result.coverage]]
+    if not (result.exact and result.method == "pass-fail" and accuracy is not None):
+        return rows + [["calibrated critical value", "run `tailstop plan --calibrate`"]]
+    start = time.monotonic()
+
+    def evaluate(z):
+        if time.monotonic() - start > CELL_SECONDS:
+            raise TimeoutError
+        return pass_fail_exact(result.probability, accuracy, result.confidence, result.pilot, stop_z=z,
+                               n_max=None)
+
+    try:
+        calibration = calibrate(evaluate, result.confidence)
+    except (TimeoutError, PlanTooLarge):
+        return rows + [["calibrated critical value", "run `tailstop plan --calibrate`"]]
+    if not calibration.reached:
+        return rows + [["calibrated critical value", "not reached up to 3 z"]]
+    return rows + [["calibrated critical value z'", calibration.z_calibrated],
+                   ["confidence to give the decision formulas", calibration.confidence_calibrated],
+                   ["coverage at z'", calibration.calibrated.coverage],
+                   ["expected units E[N] at z'", calibration.calibrated.expected_units]]
 
 
 PLAN_ARGUMENTS = dict(
