@@ -205,3 +205,22 @@ def test_a_column_of_choices_is_the_column_of_their_values():
         cell_column(codes, choices=("a", None))
     with pytest.raises(TypeError):
         cell_column(np.array([0.0]), choices=("a",))
+
+
+def test_a_column_leaves_objects_the_host_froze_frozen():
+    # the column builder ages its new lists with gc.freeze()/unfreeze(); a host process that froze
+    # objects itself (common practice before os.fork) must find them still frozen afterwards
+    import gc
+
+    from tailstop.sheet.formula import cell_column
+
+    kept = [[i] for i in range(1000)]
+    gc.freeze()
+    try:
+        frozen = gc.get_freeze_count()
+        assert frozen > 0
+        cell_column(np.arange(5.0))
+        assert gc.get_freeze_count() == frozen
+    finally:
+        gc.unfreeze()
+    del kept

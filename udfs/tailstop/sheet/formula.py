@@ -218,13 +218,17 @@ def _collector_paused():
     are made, and all of them once more soon after. ``freeze`` then
     ``unfreeze`` moves every tracked object to the oldest generation in
     constant time, so the new lists wait for the next full collection instead.
+    That is skipped when the host process keeps objects frozen itself
+    (``unfreeze`` would release those too).
     """
     enabled = gc.isenabled()
+    host_froze = gc.get_freeze_count() > 0
     gc.disable()
     try:
         yield
     finally:
-        gc.freeze()
-        gc.unfreeze()
+        if not host_froze:
+            gc.freeze()
+            gc.unfreeze()
         if enabled:
             gc.enable()
