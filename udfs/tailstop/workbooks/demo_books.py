@@ -421,7 +421,7 @@ def plan_book():
             value = summary[line - 1][column - 1] if line <= len(summary) else ""
             set_formula(sheet, f"{letter}{row + line}",
                         f'=IFERROR(INDEX(PLAN_SUMMARY({arguments}),{line},{column}),"")', value, cached)
-        sheet[f"B{row + line}"].number_format = "General"  # counts, probabilities and names alike
+        sheet[f"B{row + line}"].number_format = SUMMARY_NUMBER_FORMAT
     caution = sheet.cell(row + SUMMARY_ROWS + 2, 1, "Figures assume independent valves with gamma lifetimes at the "
                                                     "guessed parameters (pass-fail: only the probability).")
     caution.font = SOFT_FONT
@@ -524,9 +524,9 @@ def _plan_value(name, values, method):
     return function(*guess, values["accuracy"], values["confidence"], values["pilot"], method)
 
 
-def _print_one_page_wide(sheet):
-    """Landscape, every column on one page width (rows run on as they need)."""
-    sheet.page_setup.orientation = "landscape"
+def _print_one_page_wide(sheet, orientation="landscape"):
+    """Every column on one page width (rows run on as they need)."""
+    sheet.page_setup.orientation = orientation
     sheet.page_setup.fitToWidth = 1
     sheet.page_setup.fitToHeight = 0
     sheet.sheet_properties.pageSetUpPr.fitToPage = True
@@ -589,14 +589,20 @@ PLAN_READ_ME = (
 )
 
 
-# Characters that fit on one line of the Read me column (width 110), and a line's height in points.
-_READ_ME_CHARACTERS_PER_LINE = 120
+# The detailed table holds counts, expected units, probabilities far in the tail and names in one column,
+# and its rows change with the method typed in the sheet: a format by size, not by row.
+SUMMARY_NUMBER_FORMAT = "[>=100]0.0;[>=0.001]0.0000;0.000E+00"
+
+# The Read me column fits a portrait page at 100 % in a wide default font too (DejaVu Sans, where Calibri is
+# missing); the characters that fit on one of its lines in that font, a line's height in points.
+_READ_ME_WIDTH = 72
+_READ_ME_CHARACTERS_PER_LINE = 80
 _LINE_POINTS = 15
 
 
 def _read_me(sheet, lines):
     sheet.title = "Read me"
-    sheet.column_dimensions["A"].width = 110
+    sheet.column_dimensions["A"].width = _READ_ME_WIDTH
     row = 1
     for index, text in enumerate(lines):
         cell = sheet.cell(row, 1, text)
@@ -612,6 +618,7 @@ def _read_me(sheet, lines):
             cell.font = Font(italic=True, color="5D6D7E")
         row += 2 if index == 0 else 1
     sheet.sheet_view.showGridLines = False
+    _print_one_page_wide(sheet, "portrait")
 
 
 # --------------------------------------------------------------------------- writing
