@@ -31,7 +31,8 @@ def test_shape_equation_is_solved(a):
 
 @pytest.mark.parametrize("a", [0.3, 5.0, 19.0, 21.0, 400.0, 1e6])
 def test_series_helpers_match_mpmath(a):
-    # check value: mpmath at 40 digits
+    # check value: mpmath at 40 digits; tolerance 1e-13 / 1e-12: the series helpers are meant to be
+    # good to a few units in the last digits of a double (trigamma_excess is a difference, one digit less)
     mpmath.mp.dps = 40
     assert float(log_minus_digamma(a)) == pytest.approx(float(mpmath.log(a) - mpmath.digamma(a)), rel=1e-13)
     assert float(trigamma_excess(a)) == pytest.approx(float(a * mpmath.psi(1, a) - 1), rel=1e-12)
@@ -40,6 +41,9 @@ def test_series_helpers_match_mpmath(a):
 def test_running_statistics_equal_prefix_statistics():
     x = np.random.default_rng(3).gamma(1.7, 10.0, size=40)
     running = SufficientStatistics.running(x, 15.0)
+    # property: running sums equal sums of each prefix computed afresh (numpy's own sum is the reference);
+    # tolerance 1e-14 for a cumulative sum of 40 terms (a few roundings), 1e-9 for log(mean) - mean(log),
+    # a difference of two nearly equal logs that keeps about 9 digits
     for n in (2, 9, 40):
         single = SufficientStatistics.of(x[:n], 15.0)
         assert running.sum_x[n - 1] == pytest.approx(float(single.sum_x), rel=1e-14)
@@ -50,8 +54,16 @@ def test_running_statistics_equal_prefix_statistics():
 def test_nearly_equal_values_still_fit_and_equal_values_are_refused():
     x = 1000.0 + np.random.default_rng(5).normal(size=30) * 1.0
     fit = fit_gamma(x)
-    # for a gamma, var = a s^2 and mean = a s, so a is about mean^2/var ~ 1e6
+    # derivation: for a gamma, var = a s^2 and mean = a s, so a is about mean^2/var ~ 1e6
     assert 3e5 < fit.shape < 3e6
+    # check value: the ML shape solving log a - ψ(a) = log x̄ - mean(log x) in mpmath at 40 digits
+    # (1,328,689.5988 for this seeded sample); tolerance 1e-8: log x̄ - mean(log x) is 3.8e-7 here, a
+    # difference of doubles near 6.9 that keeps about 9 digits
+    with mpmath.workdps(40):
+        values = [mpmath.mpf(float(v)) for v in x]
+        ratio = mpmath.log(mpmath.fsum(values) / len(values)) - mpmath.fsum(mpmath.log(v) for v in values) / len(values)
+        reference = mpmath.findroot(lambda a: mpmath.log(a) - mpmath.digamma(a) - ratio, fit.shape)
+    assert fit.shape == pytest.approx(float(reference), rel=1e-8)
     with pytest.raises(ValueError, match="equal"):
         fit_gamma([5.0, 5.0, 5.0])
 
@@ -77,7 +89,8 @@ def test_the_statistic_and_the_batches_do_not_change_the_pvalue(monkeypatch):
     import tailstop.core.models.gamma.fit as fit
 
     x = np.random.default_rng(2).gamma(1.7, 3.0, size=50)
-    # check value: scipy's Anderson-Darling statistic of goodness_of_fit against the gamma fitted by scipy
+    # check value: scipy's Anderson-Darling statistic of goodness_of_fit against the gamma fitted by scipy;
+    # tolerance 1e-9: the two ML fits (scipy's optimizer and ours) agree to about that many digits
     reference = stats.goodness_of_fit(stats.gamma, x, known_params={"loc": 0.0}, statistic="ad",
                                       n_mc_samples=99, rng=np.random.default_rng(1))
     assert fit._anderson_darling(x) == pytest.approx(reference.statistic, rel=1e-9)
@@ -88,6 +101,9 @@ def test_the_statistic_and_the_batches_do_not_change_the_pvalue(monkeypatch):
 
 def test_pvalue_detects_a_clearly_non_gamma_sample():
     # Two well separated clusters are not gamma; gamma data are usually accepted.
+    # Levels 0.01 and 0.05: common practice significance levels. Seed-dependent: at these seeds the
+    # p-values are 0.001 (the smallest of 999 samples) and 0.341 (a gamma sample's p-value is about uniform,
+    # so 0.05 would fail for 1 seed in 20); the p-value itself is checked against scipy above.
     rng = np.random.default_rng(4)
     bimodal = np.concatenate([rng.normal(10, 0.3, 40), rng.normal(100, 3, 40)])
     assert gamma_fit_pvalue(bimodal) < 0.01

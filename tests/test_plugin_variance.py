@@ -84,8 +84,11 @@ def test_known_shape_plug_in_at_the_ml_scale(shape, closed_form):
     mean = sum(x) / len(x)
     t_hat = THRESHOLD / (mean / shape)  # ŝ = x̄ / a (METHOD.md §3)
     estimate = estimate_tail(x, THRESHOLD, "known-shape", shape)
+    # check value: ŝ = x̄ / a (METHOD.md §3) with x̄ summed in the test; tolerance 1e-14: two sums of the
+    # same doubles in a different order differ by a few roundings
     assert estimate.scale == pytest.approx(mean / shape, rel=1e-14)
-    # check value: closed forms written out above (the Erlang tail at shape 1 and 2)
+    # check value: closed forms written out above (the Erlang tail at shape 1 and 2); tolerance 1e-12:
+    # the package goes through gammaincc and logs, the closed form through exp, a few ulps apart
     assert estimate.sigma2 == pytest.approx(closed_form(t_hat), rel=1e-12)
     assert units_needed_now(x, THRESHOLD, 1.5, 0.95, "known-shape", shape).sigma2 == pytest.approx(
         closed_form(t_hat), rel=1e-12)
@@ -116,13 +119,16 @@ def test_fitted_shape_plug_in_against_mpmath():
     scale = mpmath.mpf(sum(x) / len(x)) / a
     t = THRESHOLD / scale
     estimate = estimate_tail(x, THRESHOLD, "fitted-shape")
-    # check value: the ML equation solved by mpmath.findroot and the Fisher information inverted in mpmath
+    # check value: the ML equation solved by mpmath.findroot and the Fisher information inverted in mpmath;
+    # tolerance 1e-9 on the shape and p: the double-precision ML keeps about 10 digits of log x̄ - mean(log x);
+    # 1e-7 on σ²: the package takes ∂p/∂a by a central difference (METHOD.md §3), good to about 8 digits
     assert estimate.shape == pytest.approx(float(a), rel=1e-9)
     assert estimate.p == pytest.approx(float(mpmath.gammainc(a, t, mpmath.inf, regularized=True)), rel=1e-9)
     expected = float(mp_fitted_sigma2(a, t))
     assert estimate.sigma2 == pytest.approx(expected, rel=1e-7)
     assert units_needed_now(x, THRESHOLD, 1.5, 0.95, "fitted-shape").sigma2 == pytest.approx(expected, rel=1e-7)
-    # check value: scipy.stats.gamma.fit with floc=0, a general-purpose reference for the ML shape
+    # check value: scipy.stats.gamma.fit with floc=0, a general-purpose reference for the ML shape;
+    # tolerance 1e-4: scipy's optimizer is only trusted to about 4 digits here (common practice)
     assert estimate.shape == pytest.approx(stats.gamma.fit(x, floc=0)[0], rel=1e-4)
 
 

@@ -91,6 +91,8 @@ def test_shapes_beyond_the_guaranteed_range_are_refused():
     from tailstop.core.models.gamma.tail import LARGEST_SHAPE, tail_probability
     from tailstop.sheet import TAIL_PROB, UNITS_REQUIRED
 
+    # property: the limit of the far-tail guarantee (LARGEST_SHAPE, 100,000) is the one enforced and the
+    # cell text names it; inputs at the limit and twice beyond it
     assert LARGEST_SHAPE == 1e5
     assert TAIL_PROB(1e5, LARGEST_SHAPE, 1.0) > 0
     with pytest.raises(ValueError, match="shape above 100,000"):

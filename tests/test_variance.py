@@ -53,7 +53,8 @@ def mp_fitted_sigma2(a, t):
 @pytest.mark.parametrize("a,t", [(0.5, 0.2), (1.0, 2.0), (2.0, 1.5), (6.0, 12.0), (40.0, 30.0), (0.05, 3.0),
                                  (0.3, 0.01)])
 def test_fitted_shape_matches_fisher_information_in_mpmath(a, t):
-    # check value: METHOD.md §3 formula evaluated independently in mpmath (numerical derivatives + matrix inverse)
+    # check value: METHOD.md §3 formula evaluated independently in mpmath (numerical derivatives + matrix inverse);
+    # tolerance 1e-12: the package's shape derivative is good to about 12 digits (test above at 1e-9 is its floor)
     assert float(sigma2_fitted_shape(a, t)) == pytest.approx(mp_fitted_sigma2(a, t), rel=1e-12)
 
 
@@ -93,5 +94,7 @@ def test_known_shape_variance_by_simulation():
     stats_ = SufficientStatistics(n=np.full(4000, n), sum_x=x.sum(axis=1), log_ratio=np.zeros(4000),
                                   exceedances=np.zeros(4000))
     log_q = estimate_from_statistics(stats_, c, "known-shape", a).log_odds
-    # the sample variance of 4000 draws has a relative standard error of about sqrt(2/4000) = 2.2 %
+    # check value: the METHOD.md §3 σ² against a seeded simulation written here (common practice);
+    # the sample variance of 4000 draws has a relative standard error of about sqrt(2/4000) = 2.2 %;
+    # tolerance 0.08: about 3.6 of those standard errors, with room for the O(1/n) bias of the delta method
     assert n * np.var(log_q) == pytest.approx(float(sigma2_known_shape(a, c / s)), rel=0.08)
