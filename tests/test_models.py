@@ -35,6 +35,7 @@ def test_weibull_tail_in_logs_matches_mpmath(shape, hazard):
     with mp.workdps(60):
         u = (mp.mpf(c) / mp.mpf(scale)) ** shape
         log_p, log_cdf = -u, mp.log1p(-mp.exp(-u))
+        # tolerance 1e-11: 11 significant digits of each log (METHOD.md §1 asks for 10)
         assert relative_error(tail.log_p, log_p) < 1e-11
         assert relative_error(tail.log_cdf, log_cdf) < 1e-11
         assert relative_error(tail.log_odds, log_p - log_cdf) < 1e-11
@@ -51,13 +52,15 @@ def test_lognormal_tail_in_logs_matches_mpmath(shape, score):
     with mp.workdps(60):
         z = mp.log(mp.mpf(c) / median) / shape
         log_p, log_cdf = mp.log(mp.ncdf(-z)), mp.log1p(-mp.ncdf(-z))
+        # check value: mpmath (above); tolerance 1e-11: 11 significant digits (METHOD.md §1 asks for 10)
         assert relative_error(tail.log_p, log_p) < 1e-11
         assert relative_error(tail.log_cdf, log_cdf) < 1e-11
         assert relative_error(tail.log_odds, log_p - log_cdf) < 1e-11
 
 
 def test_tails_agree_with_scipy_in_the_body():
-    # check value: scipy.stats.weibull_min / lognorm survival functions
+    # check value: scipy.stats.weibull_min / lognorm survival functions; tolerance 1e-13: in the body both
+    # routes are a few double operations from the same closed forms
     c = np.array([1.0, 20.0, 80.0, 300.0])
     assert np.allclose(weibull.tail_probability(c, 1.7, 90.0).p, stats.weibull_min.sf(c, 1.7, scale=90.0), rtol=1e-13)
     assert np.allclose(lognormal.tail_probability(c, 0.6, 70.0).p, stats.lognorm.sf(c, 0.6, scale=70.0), rtol=1e-13)
@@ -68,7 +71,8 @@ def test_tails_agree_with_scipy_in_the_body():
 
 
 def test_weibull_shape_one_is_the_exponential():
-    # check value: exponential survival e^{-c/η} (Weibull with β = 1), math.exp
+    # check value: exponential survival e^{-c/η} (Weibull with β = 1), math.exp; tolerance 1e-15: the same
+    # exp of the same double, up to one rounding of 30/100
     assert weibull.tail_probability(30.0, 1.0, 100.0).p == pytest.approx(math.exp(-0.3), rel=1e-15)
 
 
@@ -107,7 +111,9 @@ def test_fits_of_the_ball_bearing_data_match_the_textbook():
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_fits_match_scipy_with_location_zero(seed):
     # check value: scipy.stats.weibull_min.fit / lognorm.fit with floc=0 (scipy's Weibull optimiser
-    # stops earlier than ours, so ours must reach at least its log-likelihood)
+    # stops earlier than ours, so ours must reach at least its log-likelihood). Tolerances: 1e-5 on the
+    # Weibull parameters (scipy's optimiser tolerance), 1e-13 on log L from scipy's logpdf at our estimate
+    # (the same sum in two routes); the lognormal ML is closed form in both, so 1e-10 and 1e-12
     rng = np.random.default_rng(seed)
     x = 100.0 * rng.weibull(0.7 + seed, 40)
     ours = weibull.fit(x)
@@ -117,12 +123,14 @@ def test_fits_match_scipy_with_location_zero(seed):
     assert ours.log_likelihood == pytest.approx(stats.weibull_min.logpdf(x, ours.shape, 0, ours.scale).sum(), rel=1e-13)
     ours = lognormal.fit(x)
     shape, _, scale = stats.lognorm.fit(x, floc=0)
+    # check value: scipy's closed-form lognormal ML; tolerances 1e-10 / 1e-12 (see above)
     assert ours.shape == pytest.approx(shape, rel=1e-10) and ours.scale == pytest.approx(scale, rel=1e-10)
     assert ours.log_likelihood == pytest.approx(stats.lognorm.logpdf(x, shape, 0, scale).sum(), rel=1e-12)
 
 
 def test_known_shape_scales():
-    # check value: the closed forms η̂ = (mean x^β)^{1/β} and median = exp(mean log x), numpy
+    # check value: the closed forms η̂ = (mean x^β)^{1/β} and median = exp(mean log x), numpy;
+    # tolerance 1e-14: the same sums in another order
     x = np.array(BALL_BEARINGS)
     assert weibull.ml_scale(x, 1.5) == pytest.approx(np.mean(x ** 1.5) ** (1 / 1.5), rel=1e-14)
     assert lognormal.ml_scale(x, 0.5) == pytest.approx(np.exp(np.mean(np.log(x))), rel=1e-14)
@@ -150,6 +158,7 @@ def test_running_shapes_equal_the_direct_fit_of_every_prefix():
         direct = np.array([np.nan] + [weibull.fit_shape_rows(np.log(x[:n]))[0] for n in range(2, x.size + 1)])
         assert np.isnan(running[0])
         assert np.nanmax(np.abs(running - direct) / direct) < 1e-12
+        # check value: scipy.stats.weibull_min.fit (floc=0); tolerance 1e-5: scipy's optimiser tolerance
         assert running[-1] == pytest.approx(stats.weibull_min.fit(x, floc=0)[0], rel=1e-5)
 
 
@@ -196,6 +205,8 @@ def test_weibull_sigma2_closed_forms_match_the_numerical_information(shape, scal
         params = [mp.mpf(shape), mp.mpf(scale)]
         fitted = _numerical_sigma2(log_pdf, log_odds, params, known_shape=False)
         known = _numerical_sigma2(log_pdf, log_odds, params, known_shape=True)
+    # check value: mpmath (above); tolerance 1e-10: mpmath's quadrature and numerical derivatives at 30 digits
+    # are far better than that, the closed forms lose a few digits in u/(1 - p) near p = 1
     assert float(weibull.sigma2_fitted_shape(shape, threshold / scale)) == pytest.approx(fitted, rel=1e-10)
     assert float(weibull.sigma2_known_shape(shape, threshold / scale)) == pytest.approx(known, rel=1e-10)
 
@@ -214,6 +225,7 @@ def test_lognormal_sigma2_closed_forms_match_the_numerical_information(shape, sc
         params = [mp.mpf(shape), mp.mpf(scale)]
         fitted = _numerical_sigma2(log_pdf, log_odds, params, known_shape=False)
         known = _numerical_sigma2(log_pdf, log_odds, params, known_shape=True)
+    # check value: mpmath (above); tolerance 1e-10 as for the Weibull
     assert float(lognormal.sigma2_fitted_shape(shape, threshold / scale)) == pytest.approx(fitted, rel=1e-10)
     assert float(lognormal.sigma2_known_shape(shape, threshold / scale)) == pytest.approx(known, rel=1e-10)
 
@@ -249,6 +261,7 @@ def test_sigma2_matches_a_seeded_simulation(model, shape, scale, threshold):
         known_scale = fitted_scale
     fitted = n * model.tail_probability(threshold, fitted_shape, fitted_scale).log_odds.var()
     known = n * model.tail_probability(threshold, shape, known_scale).log_odds.var()
+    # check value: the seeded simulation above; tolerance 10 % = 4 standard errors of a sample variance
     assert fitted == pytest.approx(float(model.sigma2_fitted_shape(shape, threshold / scale)), rel=0.10)
     assert known == pytest.approx(float(model.sigma2_known_shape(shape, threshold / scale)), rel=0.10)
 
@@ -295,4 +308,5 @@ def test_running_fit_of_many_logs_equals_one_log_at_a_time():
         one_shape, one_scale = weibull.running_fit(x[row])
         assert np.array_equal(np.isfinite(shapes[row]), np.isfinite(one_shape))
         assert np.nanmax(np.abs(shapes[row] - one_shape) / one_shape) < 1e-12
+        # property: the two routes agree to 1e-12 (each is within about 1e-13 of the direct fit, running_fit)
         assert np.nanmax(np.abs(log_scales[row] - one_scale)) < 1e-12
