@@ -69,6 +69,9 @@ def test_units_needed_now_is_the_factor_times_the_censored_sigma2(method, shape)
     needed = units_needed_now(times, THRESHOLD, 1.5, 0.95, method, shape, survivors=suspended)
     assert needed.units == times.size                     # every unit counts, failed or suspended
     sigma2 = _rule_sigma2(times, suspended, method, shape)
+    # property: the rule uses the σ̂² the estimate reports (_rule_sigma2 calls estimate_tail / product_limit,
+    # whose numbers are checked against scipy in tests/test_censored_fits.py and by hand in
+    # tests/test_product_limit.py); tolerance 1e-12: the same formulas in another order of operations
     assert needed.sigma2 == pytest.approx(sigma2, rel=1e-12)
     assert needed.needed == pytest.approx(boundary_factor(1.5, 0.95) * sigma2, rel=1e-12)
     plan = two_stage_plan(times[:40], THRESHOLD, 1.5, 0.95, method, shape, survivors=suspended[:40])

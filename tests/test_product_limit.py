@@ -23,6 +23,8 @@ PUBLISHED = [  # (week, Ŝ, standard error)
 @pytest.mark.parametrize("week, survival, standard_error", PUBLISHED)
 def test_published_product_limit_and_greenwood(week, survival, standard_error):
     estimate = product_limit(REMISSION_WEEKS, STILL_IN_REMISSION, week)
+    # check value: PUBLISHED (Klein & Moeschberger Table 4.1A, from memory); tolerance: half a unit in the
+    # last printed decimal (3 for Ŝ, 4 for the standard error)
     assert float(estimate.survival) == pytest.approx(survival, abs=5e-4)
     assert float(estimate.standard_error) == pytest.approx(standard_error, abs=5e-5)
 
@@ -55,6 +57,7 @@ def test_segments_agree_with_the_term_by_term_product(seed):
     for c in (40.0, 100.0, 180.0):
         survival, greenwood = _brute_force(times, suspended, c)
         estimate = product_limit(times, suspended, c)
+        # check value: _brute_force; tolerance 1e-12: a product and a sum of up to 300 terms in another order
         assert float(estimate.survival) == pytest.approx(survival, rel=1e-12)
         assert float(estimate.greenwood) == pytest.approx(greenwood, rel=1e-12)
 
@@ -68,6 +71,7 @@ def test_every_prefix_at_once_equals_each_prefix_alone():
     running = product_limit(times, suspended, 60.0, prefixes=prefixes)
     for n in (1, 2, 17, 64, 133, 200):
         alone = product_limit(times[:n], suspended[:n], 60.0)
+        # property: the same terms, summed per stretch (tolerance 1e-13, abs 1e-15 where log Ŝ is 0)
         assert running.log_survival[n - 1] == pytest.approx(float(alone.log_survival), rel=1e-13, abs=1e-15)
         assert running.greenwood[n - 1] == pytest.approx(float(alone.greenwood), rel=1e-13, abs=1e-15)
         assert running.beyond[n - 1] == alone.beyond
@@ -84,6 +88,7 @@ def test_without_suspension_below_the_threshold_it_is_the_share_beyond_exactly()
     k = int(np.sum((times > 150.0) | suspended))
     n = times.size
     assert float(estimate.survival) == k / n
+    # check value: binomial variance n²/(k(n-k)) of the log-odds written out; tolerance 1e-13: rounding
     assert float(estimate.sigma2) == pytest.approx(n * n / (k * (n - k)), rel=1e-13)
     assert float(estimate.effective_units) == pytest.approx(n, rel=1e-13)
     assert float(regularized_sigma2(estimate)) == pytest.approx(float(pass_fail_rule_sigma2(n, k)),
@@ -103,6 +108,7 @@ def test_pass_fail_estimate_is_unchanged_without_suspension_below_the_threshold(
     survivors[0], times[0] = True, 50.0
     censored = estimate_tail(times, 150.0, "pass-fail", survivors=survivors)
     expected, greenwood = _brute_force(times, survivors, 150.0)
+    # check value: term-by-term Kaplan-Meier written above; tolerance 1e-13 / 1e-12 for rounding
     assert censored.p == pytest.approx(expected, rel=1e-13)
     assert censored.sigma2 == pytest.approx(120 * greenwood / (1 - expected) ** 2, rel=1e-12)
 
