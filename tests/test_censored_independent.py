@@ -65,3 +65,31 @@ def test_score_and_hessian_away_from_the_maximum_match_scipy(model, shift):
     # check value: the finite differences above; tolerances as stated there
     assert np.max(np.abs(ours_score - score)) <= 1e-6 * np.max(np.abs(score))
     assert np.max(np.abs(ours_hessian - hessian)) <= 1e-5 * np.max(np.abs(hessian))
+
+
+HESSIANS = [  # (h_xx, h_xy, h_yy): negative definite, indefinite, positive definite, singular
+    (-2.0, 0.5, -1.0), (1.0, 0.0, -1.0), (-1.0, 2.0, -1.0), (3.0, 1.0, 2.0), (0.0, 0.0, 0.0), (-1.0, 1.0, -1.0)]
+GRADIENTS = [(1.0, 0.1), (-0.3, 2.0), (1e-3, -1e-3), (5.0, 5.0)]
+
+
+@pytest.mark.parametrize("hessian", HESSIANS)
+@pytest.mark.parametrize("gradient", GRADIENTS)
+def test_damped_newton_step_always_goes_uphill(hessian, gradient):
+    # property (Levenberg 1944; Nocedal & Wright, Numerical Optimization, 2nd ed. §3.4 and §10.3, from
+    # memory): a step -(H - sI)⁻¹ g with H - sI negative definite is an ascent direction, g·step > 0,
+    # and where H is negative definite already (s = 0) it is the plain Newton step -H⁻¹g, solved here with
+    # numpy. Steps are scaled to at most (10, 10); tolerance 1e-12 relative: a 2 × 2 solve in doubles.
+    from tailstop.core.models.newton import damped_newton_step
+
+    g = np.array(gradient)
+    h_xx, h_xy, h_yy = hessian
+    step = np.array([float(v[0]) for v in damped_newton_step(
+        (np.array([g[0]]), np.array([g[1]])), (np.array([h_xx]), np.array([h_xy]), np.array([h_yy])),
+        (np.array([10.0]), np.array([10.0])))])
+    assert g @ step > 0
+    assert np.all(np.abs(step) <= 10.0 * (1 + 1e-12))
+    matrix = np.array([[h_xx, h_xy], [h_xy, h_yy]])
+    if np.all(np.linalg.eigvalsh(matrix) < 0):
+        newton = -np.linalg.solve(matrix, g)
+        scale = min(1.0, 10.0 / np.max(np.abs(newton)))
+        assert step == pytest.approx(scale * newton, rel=1e-12)
