@@ -93,3 +93,24 @@ def test_damped_newton_step_always_goes_uphill(hessian, gradient):
         newton = -np.linalg.solve(matrix, g)
         scale = min(1.0, 10.0 / np.max(np.abs(newton)))
         assert step == pytest.approx(scale * newton, rel=1e-12)
+
+
+def test_a_unit_suspended_exactly_at_the_threshold_counts_as_beyond_it():
+    # check value: by hand. Units 5, 8, 10+ (suspended at the threshold c = 10), 12+: the unit stopped at c
+    # had not failed at c, so it is known to have X > c (product_limit.py: "a suspension at or after c counts
+    # as beyond the threshold") and is not censored below it. Failures at or below c: 5 (4 at risk),
+    # 8 (3 at risk): Ŝ(10) = 3/4 · 2/3 = 1/2; Greenwood G = 1/(4·3) + 1/(3·2) = 1/4; beyond c: 2 units.
+    from tailstop.core.methods import estimate_tail
+    from tailstop.core.product_limit import product_limit
+
+    times = np.array([5.0, 8.0, 10.0, 12.0])
+    suspended = np.array([False, False, True, True])
+    estimate = product_limit(times, suspended, 10.0)
+    assert int(estimate.beyond) == 2 and int(estimate.suspended_below) == 0
+    # tolerance 1e-15: products and sums of four exact fractions
+    assert float(estimate.survival) == pytest.approx(0.5, rel=1e-15)
+    assert float(estimate.greenwood) == pytest.approx(0.25, rel=1e-15)
+    # only the unit at c is beyond and suspended: still an estimate (it was seen at c, not before it)
+    only = estimate_tail(np.array([5.0, 10.0]), 10.0, "pass-fail", survivors=np.array([False, True]))
+    # check value: by hand, Ŝ(10) = 1 - 1/2 with one failure at 5 of 2 units at risk
+    assert only.p == pytest.approx(0.5, rel=1e-15)

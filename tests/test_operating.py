@@ -54,6 +54,8 @@ def test_tiny_case_worked_on_paper():
     #   (5,3) q^ = 3/2  -> [0.2609, 8.625] covers
     #   coverage = P(N = 4) + P(N = 5) = 0.4410
     result = op.pass_fail_exact(0.3, 5.75, 0.90, 2, n_max=5)
+    # check value: the hand computation above; tolerance 1e-12 absolute: exact sums of a few
+    # products of doubles (1e-6 on z: NIST's 7 printed digits)
     assert result.stop_z == pytest.approx(Z90, abs=1e-6)
     assert result.distribution[:4] == pytest.approx([0, 0, 0, 0], abs=1e-15)
     assert result.distribution[4] == pytest.approx(0.2646, abs=1e-12)
@@ -62,6 +64,7 @@ def test_tiny_case_worked_on_paper():
     assert result.coverage == pytest.approx(0.4410, abs=1e-12)
     assert result.expected_units == pytest.approx((4 * 0.2646 + 5 * 0.1764) / 0.4410, abs=1e-12)
     # quantiles of N: P(N <= 4) = 0.2646 >= 0.05; P(N <= 5) = 0.4410 < 0.5
+    # property: quantile = the smallest n with P(N <= n) >= level, inf when never reached (hand computation above)
     assert result.quantiles == {0.05: 4.0, 0.5: math.inf, 0.95: math.inf}
 
 
@@ -80,6 +83,7 @@ def test_the_rule_uses_the_plain_share_not_the_regularized_one():
                                     exceedances=np.array([0, 50]))
     p_tilde = 0.5 / 51
     assert rule.rule_sigma2(one_side, 1.0, "pass-fail") == pytest.approx([1 / (p_tilde * (1 - p_tilde))] * 2)
+    # property: one-sided logs never stop, even at the loosest d (METHOD.md §5)
     assert not rule.stops(one_side, 1.0, 1.0001, 0.5, 2, "pass-fail").any()
 
 
@@ -135,6 +139,9 @@ def test_ties_on_the_lattice_are_decided_by_the_closed_interval():
         running = np.concatenate([running * 0.99, [0.0]]) + np.concatenate([[0.0], running * 0.01])
     assert ties > 0
     result = op.pass_fail_exact(0.01, 2.0, 0.90, pilot)
+    # check value: the rational-arithmetic propagation above; tolerance 1e-10: its masses are doubles summed
+    # over about 4,000 steps. 0.894407: regression guard, that propagation's coverage printed to 6 decimals
+    # when this test was written (tolerance half a unit in the 6th decimal)
     assert result.coverage == pytest.approx(coverage, abs=1e-10)
     assert result.coverage == pytest.approx(0.894407, abs=5e-7)
 
@@ -188,6 +195,8 @@ def test_exact_agrees_with_the_per_replication_loop():
 @pytest.mark.parametrize("p, accuracy, pilot", [(0.3, 1.5, 10), (0.05, 3.0, 2), (0.9, 2.0, 20), (0.5, 1.2, 4)])
 def test_exact_properties(p, accuracy, pilot):
     result = op.pass_fail_exact(p, accuracy, 0.95, pilot)
+    # property: a probability distribution (tolerance 1e-12: rounding of thousands of masses); the default
+    # n_max leaves at most 1e-12 of mass running (operating/exact.py)
     # probabilities add up to one with P(N > n_max)
     assert result.distribution.sum() + result.beyond == pytest.approx(1.0, abs=1e-12)
     assert np.all(result.distribution >= 0)
@@ -195,7 +204,9 @@ def test_exact_properties(p, accuracy, pilot):
     assert result.beyond <= 1e-12            # the default n_max runs until nothing is left
     assert result.expected_units >= pilot
     assert 0.0 <= result.coverage <= 1.0
+    # property: quantiles are ordered
     assert result.quantiles[0.05] <= result.quantiles[0.5] <= result.quantiles[0.95]
+    # property: a stricter boundary stops later pathwise, so its CDF of N is below (1e-12: rounding)
     # a stricter boundary (larger z) can only make the rule stop later: N grows pathwise
     later = op.pass_fail_exact(p, accuracy, 0.95, pilot, stop_z=1.3 * Z95)
     assert later.expected_units >= result.expected_units
@@ -206,6 +217,7 @@ def test_exact_properties(p, accuracy, pilot):
 def test_exact_never_stops_on_one_side_only():
     # with n_max = pilot every state S = 0 or S = n is still running: P(N > n_max) = p^m + q^m
     result = op.pass_fail_exact(0.2, 50.0, 0.5, 6, n_max=6)
+    # check value: written out, P(S = 0 or S = m) = p^m + q^m; tolerance 1e-12: rounding
     assert result.beyond == pytest.approx(0.2 ** 6 + 0.8 ** 6, rel=1e-12)
 
 
@@ -240,6 +252,8 @@ def test_pass_fail_calibration_is_the_smallest_inflation():
     # p = 0.05, d = 2, pilot 5: the exact coverage at z is below 95 % (0.946)
     evaluate = lambda z: op.pass_fail_exact(0.05, 2.0, 0.95, 5, stop_z=z)  # noqa: E731
     calibration = op.calibrate(evaluate, 0.95)
+    # property: the calibrated z is the smallest z (to its step, at most 1e-3 of z) whose exact coverage
+    # reaches the 95 % asked; the nominal z is NIST's 1.959964 (to 1e-6, 7 printed digits)
     assert calibration.reached
     assert calibration.at_z.coverage < 0.95
     assert calibration.z == pytest.approx(Z95, abs=1e-6)
@@ -249,6 +263,7 @@ def test_pass_fail_calibration_is_the_smallest_inflation():
     assert 0 < calibration.step <= 1e-3 * calibration.z + 1e-12
     # every point of the scan grid below the calibrated value falls short as well
     grid = calibration.z * (1 + 0.02 * np.arange(50))
+    # property: the calibration is the smallest z on its grid that reaches the 95 % asked
     assert all(evaluate(z).coverage < 0.95 for z in grid[grid < calibration.z_calibrated - calibration.step])
     assert calibration.extra_units == pytest.approx(
         calibration.calibrated.expected_units - calibration.at_z.expected_units)
@@ -258,6 +273,7 @@ def test_pass_fail_calibration_is_the_smallest_inflation():
 
 def test_calibration_when_nominal_is_already_reached():
     calibration = op.calibrate(lambda z: op.pass_fail_exact(0.1, 2.0, 0.95, 5, stop_z=z), 0.95)
+    # property: nominal coverage already reached at p = 0.1, so no inflation
     assert calibration.at_z.coverage >= 0.95
     assert calibration.z_calibrated == pytest.approx(calibration.z)
     assert calibration.extra_units == 0
@@ -268,6 +284,7 @@ def test_simulated_calibration_reports_its_uncertainty():
                                      stop_z=z, common_numbers=True)
     calibration = op.calibrate(evaluate, 0.95)
     assert calibration.reached
+    # property: the calibration meets the 95 % asked, also 2 Monte Carlo standard errors below
     assert calibration.calibrated.coverage >= 0.95
     optimistic, pessimistic = calibration.z_range
     assert optimistic <= calibration.z_calibrated <= pessimistic
@@ -363,6 +380,9 @@ def test_known_shape_asymptotics():
     # Chow & Robbins (1965): E[N]/n* -> 1 and coverage -> 1 - γ as d -> 1 (here n* = 1500)
     threshold, shape, scale, accuracy = known_shape_plan(1500)
     result = op.simulate(threshold, shape, scale, accuracy, 0.95, 10, replications=6000, seed=1)
+    # check value: E[N]/n* -> 1 and coverage -> 0.95 (Chow & Robbins 1965); tolerance 0.01 on the ratio:
+    # about 4 Monte Carlo standard errors of 6,000 runs at n* = 1500 plus the O(1/√n*) overshoot; coverage
+    # within AGREE standard errors or 0.01, whichever is larger
     assert result.expected_units / result.n_star == pytest.approx(1.0, abs=0.01)
     assert abs(result.coverage - 0.95) <= max(0.01, AGREE * result.coverage_se)
     assert result.beyond == 0.0
@@ -374,6 +394,8 @@ def test_standard_errors_match_the_spread_between_seeds():
     runs = [op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=400, seed=seed) for seed in range(40)]
     spread = np.std([r.expected_units for r in runs], ddof=1)
     reported = np.mean([r.expected_units_se for r in runs])
+    # derivation: the relative standard error of a sample sd of 40 draws is 1/√78 = 0.11, so ±30 % is about
+    # 2.6 of them (probability > 0.99 for normal draws)
     assert 0.7 < spread / reported < 1.4   # sd of 40 draws is within ±30 % with probability > 0.99
     coverage_spread = np.std([r.coverage for r in runs], ddof=1)
     assert 0.7 < coverage_spread / np.mean([r.coverage_se for r in runs]) < 1.4
@@ -385,6 +407,7 @@ def test_simulated_properties():
     assert result.units.min() >= 12
     assert result.expected_units >= 12
     assert 0 <= result.coverage <= 1 and 0 <= result.beyond <= 1
+    # property: quantiles are ordered
     assert result.quantiles[0.05] <= result.quantiles[0.5] <= result.quantiles[0.95]
     assert all(result.quantiles_se[level] >= 0 for level in op.QUANTILE_LEVELS)
     assert not result.exact and "300 replications" in result.kind
@@ -395,6 +418,7 @@ def test_runs_not_stopped_by_n_max_count_as_beyond_and_not_covered():
     result = op.simulate(threshold, shape, scale, accuracy, 0.95, 5, replications=1000, seed=6, n_max=250)
     assert result.beyond == 1.0 and result.coverage == 0.0
     assert math.isnan(result.expected_units)
+    # property: runs not stopped by n_max never stop: every quantile beyond is inf
     assert result.quantiles[0.5] == math.inf
 
 
@@ -431,6 +455,8 @@ def test_exact_stop_set_falls_back_to_the_full_grid_when_the_rule_is_no_interval
     monkeypatch.setattr(rule, "stops", holed)
     expected, coverage, beyond = straightforward_propagation(0.3, 2.0, 0.95, 4, 300)
     result = op.pass_fail_exact(0.3, 2.0, 0.95, 4, n_max=300)
+    # check value: the plain full-grid propagation above; tolerance 1e-14 on each mass (rounding), 1e-9 on the
+    # coverage (ties on the lattice, 3e-10 here, see below); the holes move masses by more than 1e-3
     assert abs(expected - straightforward_propagation_unholed(real)).max() > 1e-3  # the holes matter
     assert result.distribution == pytest.approx(expected, abs=1e-14)
     # (the plain propagation decides ties on the lattice by rounding, the package exactly: 3e-10 here)
