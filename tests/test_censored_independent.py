@@ -87,11 +87,13 @@ def test_damped_newton_step_always_goes_uphill(hessian, gradient):
         (np.array([g[0]]), np.array([g[1]])), (np.array([h_xx]), np.array([h_xy]), np.array([h_yy])),
         (np.array([10.0]), np.array([10.0])))])
     assert g @ step > 0
+    # property: the step is uphill and within the limits (1e-12: rounding of the scaling)
     assert np.all(np.abs(step) <= 10.0 * (1 + 1e-12))
     matrix = np.array([[h_xx, h_xy], [h_xy, h_yy]])
     if np.all(np.linalg.eigvalsh(matrix) < 0):
         newton = -np.linalg.solve(matrix, g)
         scale = min(1.0, 10.0 / np.max(np.abs(newton)))
+        # check value: numpy's 2 × 2 solve; tolerance 1e-12 (see above)
         assert step == pytest.approx(scale * newton, rel=1e-12)
 
 
@@ -108,6 +110,7 @@ def test_a_unit_suspended_exactly_at_the_threshold_counts_as_beyond_it():
     estimate = product_limit(times, suspended, 10.0)
     assert int(estimate.beyond) == 2 and int(estimate.suspended_below) == 0
     # tolerance 1e-15: products and sums of four exact fractions
+    # check value: the hand computation above (tolerance 1e-15, exact fractions)
     assert float(estimate.survival) == pytest.approx(0.5, rel=1e-15)
     assert float(estimate.greenwood) == pytest.approx(0.25, rel=1e-15)
     # only the unit at c is beyond and suspended: still an estimate (it was seen at c, not before it)
