@@ -117,3 +117,20 @@ def test_a_unit_suspended_exactly_at_the_threshold_counts_as_beyond_it():
     only = estimate_tail(np.array([5.0, 10.0]), 10.0, "pass-fail", survivors=np.array([False, True]))
     # check value: by hand, Ŝ(10) = 1 - 1/2 with one failure at 5 of 2 units at risk
     assert only.p == pytest.approx(0.5, rel=1e-15)
+
+
+def test_the_row_of_the_first_suspension_below_the_threshold_uses_the_product_limit():
+    # check value: by hand, pass-fail at d = 3, 90 %: B = (z / ln 3)² = (1.644854 / 1.098612)² = 2.2416
+    # (z from NIST/SEMATECH §1.3.6.7.1). Ten units beyond c = 100, failures at 61 and 84, then a unit
+    # suspended at 44. Read as a failure, the 13th row has k = 10 of n = 13 beyond and
+    # k (n - k) / n = 30/13 = 2.31 >= B: STOP. Read as a suspension (product-limit, Kaplan & Meier 1958):
+    # at 61 and 84 there are 12 and 11 units at risk, Ŝ = 11/12 · 10/11 = 5/6, Greenwood G = 1/(12·11)
+    # + 1/(11·10) = 1/60, σ̂² = n G / (1 - Ŝ)² = 13 · 36 / 60 = 7.8 and B σ̂² = 17.5 > 13: CONTINUE.
+    from tailstop.sheet import STOP_DECISION, STOP_DECISION_COLUMN
+
+    values = (120, 130, 140, 150, 160, 170, 180, 190, 200, 210, 61, 84)
+    suspended_last = [[v] for v in values + ("44+",)]
+    failed_last = [[v] for v in values + (44,)]
+    assert STOP_DECISION_COLUMN(failed_last, 100, 3.0, 0.9, 2)[-1] == ["STOP"]
+    assert STOP_DECISION_COLUMN(suspended_last, 100, 3.0, 0.9, 2)[-1] == ["CONTINUE"]
+    assert STOP_DECISION(suspended_last, 100, 3.0, 0.9, 2) == "CONTINUE"

@@ -99,6 +99,7 @@ def test_exact_coverage_never_below_the_confidence(accuracy, confidence, pilot, 
         lowest = min(lowest, coverage)
         assert coverage >= confidence, f"p = {p:.6g}: coverage {coverage:.6f} < {confidence}"
     # the certified bound is a lower bound of every coverage seen
+    # property: the certified bound is a lower bound (1e-9: the propagation's own truncation tolerance)
     assert tuned.coverage_bound <= lowest + 1e-9
 
 
@@ -107,12 +108,16 @@ def test_the_untuned_boundary_is_pass_fails_and_falls_short():
     for p in (0.4, 0.05, 0.01):
         coverage, mean, _ = propagated_coverage(p, 3.0, 0.90, 2, 1, factor=1.0, tolerance=1e-13)
         plain = pass_fail_exact(p, 3.0, 0.90, 2)
+        # check value: the propagation written in this file against pass-fail's exact planning figures;
+        # tolerance 1e-9: both truncate the running mass near 1e-13 and sum thousands of terms
         assert coverage == pytest.approx(plain.coverage, abs=1e-9)
         assert mean == pytest.approx(plain.expected_units, rel=1e-9)
     # ... and its coverage is below 0.90 somewhere: the check finds a p, and the propagation confirms it
     found = tuning_module.check(1.0, 3.0, 0.90, 2, 1, tuning_module.p_low_for(3.0, 0.90))
     assert not found.holds and found.reason == "point below"
     witness = found.where[0]
+    # property: the witness is below 90 % under the untuned rule and reaches it under the tuned one
+    # (the propagation written in this file decides; 0.90 is the confidence asked)
     assert propagated_coverage(witness, 3.0, 0.90, 2, 1, factor=1.0)[0] < 0.90
     tuned = guaranteed.tuning(3.0, 0.90, 2)
     assert tuned.factor > 1
@@ -127,6 +132,8 @@ def test_lattice_counts_give_the_propagated_distribution():
     for p in (0.5, 0.2, 0.03, 0.011):
         mass = states.mass(p)
         coverage, mean, left = propagated_coverage(p, accuracy, confidence, pilot, 2, factor, tolerance=1e-14)
+        # check value: the propagation written in this file; tolerance 1e-9: it stops at 1e-14 of mass left,
+        # the lattice box at p = 0.01 cuts a little more
         assert mass.sum() == pytest.approx(1.0, abs=1e-9)
         assert float(np.dot(states.k + states.f, mass)) == pytest.approx(mean, rel=1e-9)
         assert certify.coverage_at(states, p, accuracy) == pytest.approx(coverage, abs=1e-9)
@@ -142,6 +149,7 @@ def test_interval_bound_is_below_the_coverage_inside_the_interval():
         b = a * float(np.exp(rng.uniform(0.001, 0.05)))
         bound = certify.interval_bound(states, a, b, accuracy)
         inside = np.linspace(a, b, 9)
+        # property: the interval bound is below the coverage at every p inside (1e-12: rounding)
         assert bound <= min(propagated_coverage(p, accuracy, confidence, pilot, 1, factor)[0] for p in inside) + 1e-12
 
 
@@ -213,6 +221,8 @@ def test_plan_summary_shows_both_rules_and_the_range():
                                                           "pass-fail-exact"))
     tuned = guaranteed.tuning(3.0, 0.9, 2)
     assert table["method"] == "pass-fail-exact"
+    # property: the tuned rule's coverage is the 0.9 asked at least; pass-fail figures from
+    # operating.pass_fail_exact (checked against the propagation above), tolerance 1e-9 as there
     assert table["coverage"] >= 0.9
     assert table["pass-fail-exact guaranteed from p"] == tuned.p_low
     assert table["pass-fail-exact guarantee covers this p"] == "yes"

@@ -53,15 +53,18 @@ def two_cluster_log():
 
 @pytest.mark.parametrize("method,shape", [("fitted-shape", None), ("known-shape", 1.0)])
 def test_failed_fit_check_is_reported_for_gamma_methods(two_cluster_log, method, shape):
+    # check value: scipy's goodness_of_fit p-value (reference_fit_pvalue); 0.01 and 0.05: common practice levels
     assert reference_fit_pvalue(two_cluster_log) < 0.01  # clearly below 5 %, whatever the Monte Carlo stream
     notes = method_notes(two_cluster_log, 300.0, method, shape)
     assert "gamma-fit-fails" in codes(notes)
     note = notes[codes(notes).index("gamma-fit-fails")]
+    # property: the note is raised below the common practice 5 % level, and carries the p-value
     assert note.figures["pvalue"] < 0.05
     assert "pass-fail" in note.text
 
 
 def test_passed_fit_check_is_not_reported(gamma_log):
+    # check value: scipy's goodness_of_fit p-value; common practice: clearly above the 5 % level
     assert reference_fit_pvalue(gamma_log) > 0.2  # clearly above 5 %
     assert "gamma-fit-fails" not in codes(method_notes(gamma_log, 1500.0, "fitted-shape"))
     assert "gamma-fit-fails" not in codes(method_notes(gamma_log, 1500.0, "known-shape", 2.4))
@@ -110,6 +113,8 @@ def reference_shape_statistic(x, given):
 @pytest.mark.parametrize("given", [1.0, 1.8, 2.4, 4.0])
 def test_shape_statistic_matches_scipy_likelihoods(gamma_log, given):
     test = shape_likelihood_ratio(gamma_log, given)
+    # check value: scipy.stats.gamma.fit and logpdf (reference_shape_statistic); tolerance 1e-5 relative, 1e-6
+    # absolute: scipy's optimiser agrees with the exact ML to about 6 digits
     assert test.statistic == pytest.approx(reference_shape_statistic(gamma_log, given), rel=1e-5, abs=1e-6)
     assert test.fitted == pytest.approx(stats.gamma.fit(gamma_log, floc=0)[0], rel=1e-5)
 
@@ -127,15 +132,18 @@ def test_shape_test_rejects_at_the_chi_square_critical_value():
 
 
 def test_wrong_known_shape_is_reported(gamma_log):
+    # check value: scipy chi-square sf of scipy's likelihood ratio; 0.05: common practice level
     assert stats.chi2.sf(reference_shape_statistic(gamma_log, 1.0), 1) < 0.05
     notes = method_notes(gamma_log, 1500.0, "known-shape", 1.0)
     assert "shape-disagrees" in codes(notes)
     note = notes[codes(notes).index("shape-disagrees")]
+    # check value: scipy.stats.gamma.fit (floc=0); tolerance 1e-5: scipy's optimiser tolerance
     assert note.figures["fitted"] == pytest.approx(stats.gamma.fit(gamma_log, floc=0)[0], rel=1e-5)
     assert "fitted-shape" in note.text
 
 
 def test_right_known_shape_is_not_reported(gamma_log):
+    # check value: scipy chi-square sf of scipy's likelihood ratio; 0.05: common practice level
     assert stats.chi2.sf(reference_shape_statistic(gamma_log, 2.4), 1) > 0.05
     assert "shape-disagrees" not in codes(method_notes(gamma_log, 1500.0, "known-shape", 2.4))
 
