@@ -33,6 +33,7 @@ import numpy as np
 
 from .models import get_model
 from .models import censored_log_location as _log_location
+from .models.censored_prefixes import prefix_fits
 from .models.gamma import censored as _gamma_censored
 from .models.gamma.fit import shape_from_log_ratio
 from .probability import TailProbability
@@ -276,17 +277,23 @@ class CensoredRule:
     very same; after it σ̂² is the censored one: the product-limit σ̂² for
     pass-fail (``product_limit.regularized_sigma2``; the rule never
     stops while no unit has failed at or below the threshold or none is seen
-    beyond it), the observed-information σ̂² for the gamma methods (the rule
-    continues while there are too few failures).
+    beyond it), the observed-information σ̂² for the parametric methods (the rule
+    continues while there are too few failures). The Weibull and lognormal
+    prefixes are fitted all at once around a moving expansion point
+    (``models.censored_prefixes``), Weibull with a known shape from its closed
+    form, gamma check point by check point.
     """
 
     # each censored check point costs a fit over its prefix: start with few of them
     first_chunk = 32
+    # the Weibull and lognormal prefixes are fitted all at once up to these lengths, then the whole log
+    _PREFIX_LIMITS = (1 << 12, 1 << 16)
 
     def __init__(self, plain, method, model="gamma"):
         self.plain = plain
         self.method = method
         self.model = model
+        self._prefix_limit, self._prefix_sigma2 = 0, np.empty(0)
 
     def running_sums(self, x, threshold, survivors):
         censored = censored_units(x, survivors, threshold, self.method)
@@ -302,15 +309,26 @@ class CensoredRule:
             return regularized_sigma2(product_limit(x, flags, threshold, prefixes=n))
         if (self.model, self.method) in _CLOSED_FORMS:
             return _CLOSED_FORMS[self.model, self.method](x, flags, n, float(shape), threshold)[1]
+        if self.model in _log_location.FAMILIES:
+            return self._prefixes_up_to(x, flags, int(n.max()), threshold, shape)[n - 1]
         out = np.empty(n.size)
         suspended = np.unique(x[: n.max()][flags[: n.max()]]).size
-        width = max(1, int(n.max()) + suspended if self.model in _log_location.FAMILIES else suspended)
+        width = max(1, suspended)
         rows = max(1, _RULE_CELLS // width)
         for start in range(0, n.size, rows):
             part = n[start:start + rows]
             data = _prefix_data(x, flags, part, self.model)
             out[start:start + rows] = _model_fit(data, threshold, self.method, shape, self.model)[2]
         return out
+
+    def _prefixes_up_to(self, x, flags, last, threshold, shape):
+        """σ̂² of every prefix of the first L units (Weibull, lognormal), L the next limit at or past ``last``."""
+        if last > self._prefix_limit:
+            limit = next((size for size in self._PREFIX_LIMITS if size >= last), x.size)
+            limit = min(x.size, max(limit, last))
+            fits = prefix_fits(self.model, x, flags, threshold, self.method, shape, count=limit)
+            self._prefix_limit, self._prefix_sigma2 = limit, fits.sigma2
+        return self._prefix_sigma2
 
     def stops(self, sums, n, factor, threshold, shape):
         plain, _, _, first = sums
