@@ -134,3 +134,18 @@ def test_the_row_of_the_first_suspension_below_the_threshold_uses_the_product_li
     assert STOP_DECISION_COLUMN(failed_last, 100, 3.0, 0.9, 2)[-1] == ["STOP"]
     assert STOP_DECISION_COLUMN(suspended_last, 100, 3.0, 0.9, 2)[-1] == ["CONTINUE"]
     assert STOP_DECISION(suspended_last, 100, 3.0, 0.9, 2) == "CONTINUE"
+
+
+def test_the_heavy_censoring_warning_starts_above_thirty_percent():
+    # property: docs/method.md and docs/cautions.md promise the warning "when more than 30 % of the units are
+    # suspended": 3 of 10 is not more than 30 %, 4 of 10 is; known-shape reads every + as censored
+    from tailstop.core.censored import censoring_notes
+
+    times = np.array([100.0, 200.0, 300.0, 400.0, 500.0, 600.0, 700.0, 800.0, 900.0, 1000.0])
+
+    def codes(count):
+        flags = np.arange(times.size) < count
+        return [code for code, _, _ in censoring_notes(times, flags, 650.0, "known-shape")]
+
+    assert "suspended-units" in codes(3) and "many-suspended" not in codes(3)
+    assert "many-suspended" in codes(4)
