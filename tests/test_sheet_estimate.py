@@ -31,6 +31,7 @@ def is_message(value):
 
 def test_tail_prob_matches_scipy_gamma_survival():
     # check value: scipy.stats.gamma.sf, a general-purpose reference, in the body of the distribution
+    # tolerance 1e-13: scipy's gammaincc and ours, a few roundings apart in the body
     assert TAIL_PROB(1500.0, 2.4, 520.0) == pytest.approx(stats.gamma.sf(1500.0, 2.4, scale=520.0), rel=1e-13)
 
 
@@ -43,6 +44,8 @@ def test_estimates_from_a_fixture_workbook(fixture_log):
     assert TAIL_PROB_EST(column, c) == np.mean(lifetimes > c)
     # fitted-shape: scipy.stats.gamma.fit (floc=0) then the survival function — a general-purpose reference
     a, _, s = stats.gamma.fit(lifetimes, floc=0)
+    # tolerance 1e-6 against scipy's gamma fit (its optimiser agrees with the ML to about 7 digits), 1e-13 for
+    # the known-shape closed form, 1e-7 on the fitted shape and scale
     assert TAIL_PROB_EST(column, c, "fitted-shape") == pytest.approx(stats.gamma.sf(c, a, scale=s), rel=1e-6)
     # known-shape: ML scale is mean/shape (closed form), then gammaincc
     assert TAIL_PROB_EST(column, c, "known-shape", 2.0) == pytest.approx(
@@ -60,6 +63,7 @@ def test_bounds_follow_method_section_2(fixture_log):
         q = p / (1 - p)
         [[odds_low, odds_high]] = TAIL_ODDS_BOUNDS(column, 1200.0, 1.5, method)
         [[low, high]] = TAIL_PROB_BOUNDS(column, 1200.0, 1.5, method)
+        # check value: METHOD.md §2 closed forms; tolerance 1e-12: a few roundings of q
         assert odds_low == pytest.approx(q / 1.5, rel=1e-12) and odds_high == pytest.approx(q * 1.5, rel=1e-12)
         assert low == pytest.approx(q / (1.5 + q), rel=1e-12) and high == pytest.approx(1.5 * q / (1 + 1.5 * q), rel=1e-12)
         assert low < p < high
@@ -86,6 +90,7 @@ def test_units_required_orders_the_methods():
 def test_whole_column_reference_is_cheap_and_correct():
     # A reference like B:B passes a million rows, nearly all blank.
     column = [[float(v)] for v in (100.0, 900.0, 2500.0, 40.0, 3100.0)] + [[None]] * (1_048_576 - 5)
+    # check value: 2 of the 5 values (2500, 3100) exceed 1000, counted by hand: 0.4
     assert TAIL_PROB_EST(column, 1000.0) == 0.4
 
 
@@ -108,6 +113,7 @@ def test_position_in_a_two_column_range():
 
 def test_numeric_text_is_read_as_a_number(tmp_path):
     path = write_log(tmp_path / "text.xlsx", ["120", "1300.5", 800.0, "2000"])
+    # check value: counted by hand (1300.5 and 2000 of the 4 values)
     assert TAIL_PROB_EST(range_values(path, "Log", "B2:B5"), 1000.0) == 0.5  # 1300.5 and 2000 of 4
 
 
@@ -140,11 +146,14 @@ def test_bad_arguments_say_what_to_fix(call, fragment):
 def test_pass_fail_survivors_count_as_beyond_the_threshold():
     # 5 units: two failures beyond 1000, one survivor taken off at 1000 (counts), two failures below
     column = [[1200.0], ["1000+"], [300.0], [1500.0], [700.0]]
+    # check value: by hand, 3 of 5 beyond 1000 (1200, 1000+, 1500); q = 1.5, p_low = q/(d+q) (METHOD.md §2),
+    # tolerance 1e-12 for rounding
     assert TAIL_PROB_EST(column, 1000.0) == 0.6
     [[low, high]] = TAIL_PROB_BOUNDS(column, 1000.0, 2.0)
     assert low == pytest.approx(1.5 / (2 + 1.5), rel=1e-12)  # q = 0.6/0.4 = 1.5, METHOD.md §2
     # check value: by hand, product limit at 1100 with the unit at 1000 suspended below it:
     # 300 fails among 5 at risk, 700 among 4: Ŝ = (4/5)(3/4) = 0.6
+    # tolerance 1e-15: a product of two exact fractions
     assert TAIL_PROB_EST(column, 1100.0) == pytest.approx(0.6, rel=1e-15)
     assert not is_message(TAIL_PROB_EST(column, 1000.0, "fitted-shape"))
     refused = GAMMA_FIT_SHAPE(column)
@@ -187,6 +196,7 @@ def test_python_callers_may_name_the_arguments(fixture_log):
     # check value: scipy.stats.gamma.fit (floc=0) then the survival function — a general-purpose reference
     a, _, s = stats.gamma.fit(lifetimes, floc=0)
     named = TAIL_PROB_EST(column, c, method="fitted-shape")
+    # tolerance 1e-6: scipy's optimiser agrees with the ML to about 7 digits
     assert named == pytest.approx(stats.gamma.sf(c, a, scale=s), rel=1e-6)
     assert TAIL_PROB_EST(observations=column, threshold=c, method="fitted-shape") == named
     # the same values by name and by position, for a formula with a shape and one with a range result

@@ -18,11 +18,13 @@ Z95 = 1.959964  # check value: NIST/SEMATECH §1.3.6.7.1
 
 def test_tail_prob_takes_the_model():
     # check value: Weibull e^{-(c/η)^β} by hand (math.exp); scipy.stats.lognorm.sf
+    # tolerance 1e-15 on e^-1 (exp of an exact -1), 1e-13 against scipy's lognorm.sf (a few roundings apart)
     assert sheet.TAIL_PROB(1000, 2, 1000, "weibull") == pytest.approx(math.exp(-1.0), rel=1e-15)
     assert sheet.TAIL_PROB(1000, 2, 1000, "WeiBull ") == pytest.approx(math.exp(-1.0), rel=1e-15)
     assert sheet.TAIL_PROB(2000, 0.5, 1000, "lognormal") == pytest.approx(stats.lognorm.sf(2000, 0.5, scale=1000), rel=1e-13)
     # default and explicit gamma: the same bits (check value: scipy.stats.gamma.sf)
     assert sheet.TAIL_PROB(1800, 2, 600) == sheet.TAIL_PROB(1800, 2, 600, "gamma") == sheet.TAIL_PROB(1800, 2, 600, None)
+    # tolerance 1e-13: scipy's gammaincc and ours, a few roundings apart in the body
     assert sheet.TAIL_PROB(1800, 2, 600) == pytest.approx(stats.gamma.sf(1800, 2, scale=600), rel=1e-13)
 
 
@@ -41,6 +43,8 @@ def test_estimates_under_each_model_match_scipy_fits():
     # check value: scipy.stats.weibull_min.fit / lognorm.fit with floc=0, then their sf at the threshold
     threshold = 75.0
     shape, _, scale = stats.weibull_min.fit(BALL_BEARINGS, floc=0)
+    # tolerance 1e-5 on the Weibull (scipy's optimiser tolerance); 1e-10 on the closed-form lognormal ML;
+    # 1e-13 on the known-shape closed form
     assert sheet.TAIL_PROB_EST(COLUMN, threshold, "fitted-shape", None, "weibull") == \
         pytest.approx(stats.weibull_min.sf(threshold, shape, scale=scale), rel=1e-5)
     shape, _, scale = stats.lognorm.fit(BALL_BEARINGS, floc=0)
@@ -48,6 +52,7 @@ def test_estimates_under_each_model_match_scipy_fits():
         pytest.approx(stats.lognorm.sf(threshold, shape, scale=scale), rel=1e-10)
     # known shape: η̂ = (mean x^β)^{1/β} (closed form, numpy)
     eta = np.mean(np.array(BALL_BEARINGS) ** 2.0) ** 0.5
+    # check value: closed form above; tolerance 1e-13, a few roundings of the same exp
     assert sheet.TAIL_PROB_EST(COLUMN, threshold, "known-shape", 2, "weibull") == pytest.approx(math.exp(-(threshold / eta) ** 2), rel=1e-13)
     # pass-fail ignores the model
     assert sheet.TAIL_PROB_EST(COLUMN, threshold, None, None, "weibull") == sheet.TAIL_PROB_EST(COLUMN, threshold)
@@ -58,6 +63,7 @@ def test_bounds_are_the_fixed_accuracy_interval_of_the_model_estimate():
     p = sheet.TAIL_PROB_EST(COLUMN, 75.0, "fitted-shape", None, "lognormal")
     q = p / (1 - p)
     [[low, high]] = sheet.TAIL_PROB_BOUNDS(COLUMN, 75.0, 1.5, "fitted-shape", None, "lognormal")
+    # tolerance 1e-12 (the closed forms in doubles); 1e-10 on the odds, p/(1-p) amplifies the rounding of p
     assert (low, high) == pytest.approx((q / (1.5 + q), 1.5 * q / (1 + 1.5 * q)), rel=1e-12)
     [[odds_low, odds_high]] = sheet.TAIL_ODDS_BOUNDS(COLUMN, 75.0, 1.5, "fitted-shape", None, "weibull")
     p = sheet.TAIL_PROB_EST(COLUMN, 75.0, "fitted-shape", None, "weibull")
@@ -99,6 +105,8 @@ def test_fit_compare_ranks_by_aic():
     for name, distribution in (("gamma", stats.gamma), ("weibull", stats.weibull_min), ("lognormal", stats.lognorm)):
         shape, _, scale = distribution.fit(BALL_BEARINGS, floc=0)
         reference = distribution.logpdf(BALL_BEARINGS, shape, 0, scale).sum()
+        # check value: scipy logpdf at scipy's fits (above); tolerance 1e-6 absolute: scipy's Weibull optimiser
+        # stops within about 1e-6 of the maximum of log L; AIC written out, rel 1e-15 (exact arithmetic)
         assert rows[name][3] == pytest.approx(reference, abs=1e-6)
         assert rows[name][4] == pytest.approx(4 - 2 * rows[name][3], rel=1e-15)
     aics = [row[4] for row in table[1:]]
