@@ -120,3 +120,20 @@ def test_clearly_better_holds_at_exactly_the_difference(monkeypatch):
     monkeypatch.setattr(compare_module, "compare_models", lambda observations, pvalues=True: rows(4.0 - 1e-9))
     # property: a gap below 4 is not clearly better
     assert better_model([1.0, 2.0], "gamma") is None
+
+
+def test_fit_compare_rows_hold_each_model_s_own_shape_and_scale():
+    # check value: scipy.stats gamma / weibull_min / lognorm .fit with floc=0 on the same values, column by
+    # column of the table (model, shape, scale, log-likelihood, AIC, p-value); tolerance 1e-4: scipy's
+    # general optimiser (common practice), ample to tell a shape from a scale (here 1.5 against about 300)
+    from tailstop.sheet import FIT_COMPARE
+
+    x = np.random.default_rng(15).weibull(1.5, 50) * 300.0
+    table = FIT_COMPARE([[float(v)] for v in x])
+    rows = {row[0]: row for row in table[1:]}
+    for name, law in (("gamma", stats.gamma), ("weibull", stats.weibull_min), ("lognormal", stats.lognorm)):
+        shape, _, scale = law.fit(x, floc=0)
+        # check value: scipy's fits (above), tolerance 1e-4 as said there
+        assert rows[name][1] == pytest.approx(shape, rel=1e-4)
+        assert rows[name][2] == pytest.approx(scale, rel=1e-4)
+        assert 0 < rows[name][5] <= 1
