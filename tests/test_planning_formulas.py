@@ -59,11 +59,15 @@ def test_summary_from_p_is_exact_and_matches_the_plain_propagation():
     distribution, coverage, _ = straightforward_propagation(0.5, 1.5, 0.95, 10, 400)
     n = np.arange(distribution.size)
     mean = np.dot(n, distribution) / distribution.sum()
+    # check value: the plain full-grid propagation (above); tolerances 1e-9 / 1e-10 / 1e-8 absolute: the two
+    # propagations cut the running mass at different points (far below 1e-12) and sum hundreds of terms; the sd
+    # squares the differences, so one digit less
     assert table["expected units E[N]"] == pytest.approx(mean, abs=1e-9)
     assert table["coverage"] == pytest.approx(coverage, abs=1e-10)
     assert table["sd of N"] == pytest.approx(math.sqrt(np.dot((n - mean) ** 2, distribution)), abs=1e-8)
     cdf = np.cumsum(distribution)
     assert table["N 50% quantile"] == int(np.searchsorted(cdf, 0.5))
+    # property: the confidence asked is shown as typed
     assert table["nominal confidence"] == 0.95
 
 
@@ -72,6 +76,8 @@ def test_pass_fail_from_gamma_parameters_uses_the_gamma_tail(planning_book):
     # check value: scipy.stats.gamma.sf, a general-purpose reference
     p = stats.gamma.sf(threshold, shape, scale=scale)
     from_p = as_dict(PLAN_SUMMARY_FROM_P(p, accuracy, confidence, pilot))
+    # check value: scipy.stats.gamma.sf (above) into the p-based formula; tolerance 1e-9 (E[N], coverage: the
+    # same exact propagation from p's a few roundings apart), 1e-12 on p itself
     assert PLAN_EXPECTED_UNITS(threshold, shape, scale, accuracy, confidence, pilot) == pytest.approx(
         from_p["expected units E[N]"], rel=1e-9)
     assert PLAN_COVERAGE(threshold, shape, scale, accuracy, confidence, pilot, "pass-fail") == pytest.approx(
@@ -86,6 +92,8 @@ def test_simulated_summary_from_the_workbook(planning_book):
     assert table["method"] == "known-shape" and table["figures"] == "simulated"
     assert table["replications"] == 10_000 and table["seed"] == 20261201
     # the standard error of E[N] is sd / sqrt(R); that of the coverage sqrt(c (1 - c) / R)
+    # derivation: a Monte Carlo mean of R = 10,000 runs has standard error sd/√R = sd/100, a share c has
+    # √(c(1-c)/R); tolerance 1e-9 for rounding
     assert table["expected units E[N]: MC std. error"] == pytest.approx(table["sd of N"] / 100, rel=1e-9)
     c = table["coverage"]
     assert table["coverage: MC std. error"] == pytest.approx(math.sqrt(c * (1 - c) / 10_000), rel=1e-9)
@@ -106,6 +114,8 @@ def test_results_fit_in_cells(planning_book, tmp_path):
     assert [row[0] for row in back] == [row[0] for row in table]
     for (_, read), (_, written) in zip(back, table):
         assert isinstance(written, (str, int, float)) and not isinstance(written, bool)
+        # property: a number written to a cell and read back with openpyxl keeps its value (1e-14: the text form
+        # of a double in the XML keeps 15-17 digits)
         assert read == written if isinstance(written, str) else read == pytest.approx(written, rel=1e-14)
 
 
@@ -149,6 +159,8 @@ def test_every_call_is_bounded():
     result = PLAN_SUMMARY_FROM_P(0.5, 1.03, 0.95, 10)
     assert is_message(result) and "10,000 units" in result and "tailstop plan" in result
     # beyond the command's bound too: the cell says what is known instead of sending users to it
+    # check value: n* = (z / ln 1.01)² · 4 = 155,196.2 (z from NIST/SEMATECH §1.3.6.7.1, derivation METHOD.md §4),
+    # so the fixed-size test needs 155,197 units
     result = PLAN_SUMMARY_FROM_P(0.5, 1.01, 0.95, 10)
     assert is_message(result) and "tailstop plan" not in result and "a fixed-size test of 155,197 units" in result
     # replications × units beyond the cap of a simulating cell: the message says how many are allowed
@@ -159,6 +171,8 @@ def test_every_call_is_bounded():
     assert 1 <= allowed < 50_000
     # with the default count, a large fitted-shape plan runs fewer replications, and says so in the table
     table = as_dict(PLAN_SUMMARY(1000, 2, 600, 1.12, 0.95, 10, "fitted-shape"))
+    # property: the work cap WORK_LIMIT["fitted-shape"] = 4,000,000 (sheet/planning.py) holds, with 1 % for
+    # the rounding of the replication count
     assert table["replications"] * (table["fixed-size units n*"] + 400) <= 4_000_000 * 1.01
     assert 100 <= table["replications"] < 10_000
 

@@ -64,6 +64,7 @@ def test_exact_pass_fail_plan_against_the_propagation_written_here(p, accuracy, 
     distribution, beyond, coverage = pass_fail_plan_by_hand(p, accuracy, confidence, pilot, n_max, check_every)
     result = operating.pass_fail_exact(p, accuracy, confidence, pilot, n_max=n_max, check_every=check_every)
     # check value: the propagation above (METHOD.md §5–6 coded independently of the package)
+    # tolerance 1e-13 per mass, 1e-12 on the sums: both propagate the same doubles, a few roundings apart
     assert result.distribution[: n_max + 1] == pytest.approx(distribution, abs=1e-13)
     assert result.beyond == pytest.approx(beyond, abs=1e-12)
     assert result.coverage == pytest.approx(coverage, abs=1e-12)
@@ -73,6 +74,8 @@ def test_exact_pass_fail_plan_against_the_propagation_written_here(p, accuracy, 
     if check_every > 1:
         return
     table = dict(PLAN_SUMMARY_FROM_P(p, accuracy, confidence, pilot))
+    # check value: the propagation above through the sheet formulas; tolerance 1e-9: they stop the propagation
+    # where the running mass is negligible, which moves the sums below 1e-9
     assert table["expected units E[N]"] == pytest.approx(mean, rel=1e-9)
     assert table["coverage"] == pytest.approx(coverage, abs=1e-9)
     # METHOD.md §4: n* = (z / log d)² / (p(1-p))
@@ -86,6 +89,7 @@ def test_planning_formulas_from_gamma_guesses_against_the_propagation_written_he
     p = math.exp(-t) * (1 + t)
     distribution, _, coverage = pass_fail_plan_by_hand(p, accuracy, confidence, pilot, 2000)
     mean = float(np.dot(np.arange(distribution.size), distribution) / distribution.sum())
+    # check value: the propagation above; tolerance 1e-9 (see the test above)
     assert PLAN_EXPECTED_UNITS(threshold, shape, scale, accuracy, confidence, pilot) == pytest.approx(mean, rel=1e-9)
     assert PLAN_COVERAGE(threshold, shape, scale, accuracy, confidence, pilot) == pytest.approx(coverage, abs=1e-9)
 

@@ -54,6 +54,8 @@ def test_sigma2_under_type_one_censoring_against_quadrature(model, shape, scale,
     # check value: the expected information by quadrature of the squared scores (written above)
     expected = reference_sigma2(model, 1000.0, shape, scale, test_time)
     for method in ("known-shape", "fitted-shape"):
+        # tolerance 2e-5: the reference's scores come from central differences of scipy's logpdf/logsf (about
+        # 1e-7 each) and squared; the package integrates by scipy.integrate.quad
         assert time_terminated_sigma2(method, 1000.0, shape, scale, test_time, model) == pytest.approx(
             expected[method], rel=2e-5)
 
