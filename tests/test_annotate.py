@@ -149,6 +149,7 @@ def test_decision_column_and_block_follow_the_rule_and_the_interval(log_path):
     assert block["Log rows used, counted from row 2 (down to the STOP)"] == stop
     # check value: the pass-fail estimate is the share of units beyond the threshold (counted here)
     share = sum(v > THRESHOLD for v in lifetimes[:stop]) / stop
+    # tolerance 1e-15: the same k/n in doubles; 1e-14 on the bounds, a few roundings of q
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(share, rel=1e-15)
     # check value: METHOD.md §2, the fixed-accuracy interval [q/d, q d] and its probability-scale image
     odds = share / (1 - share)
@@ -182,6 +183,8 @@ def test_every_pre_existing_cell_keeps_its_value_and_formula(log_path):
             if content[1] != "f":
                 assert after_values[title][coordinate] == content, f"{title}!{coordinate}"
     notes = openpyxl.load_workbook(result.path)["Notes"]
+    # property: values of the other sheets come back as written (0.1 + 0.2 keeps its last bit, a 20-digit
+    # integer stays whole)
     assert notes["A3"].value == 0.1 + 0.2 and notes["A4"].value == 12345678901234567891
     assert [r.coord for r in notes.merged_cells.ranges] == ["D1:E3"]
     assert openpyxl.load_workbook(result.path)[LOG_SHEET]["H1"].comment.text == "set up by the bench team"
@@ -203,6 +206,7 @@ def test_live_mode_writes_formulas_whose_cached_values_the_engine_reproduces(log
                 stored = cached[cell.coordinate].value
                 engine = computed[(LOG_SHEET.upper(), cell.coordinate)]
                 if isinstance(stored, float):
+                    # property: the formula engine recomputes the cached values (tolerance 1e-12: its own order of operations)
                     assert engine == pytest.approx(stored, rel=1e-12), cell.coordinate
                 else:
                     assert (engine or None) == (stored or None), cell.coordinate
@@ -219,6 +223,7 @@ def test_values_mode_matches_live_mode(log_path):
         assert plain.cell(row, 7).value == cached.cell(row, 7).value
     for row in range(11, 21):
         value, stored = plain.cell(row, 11).value, cached.cell(row, 11).value
+        # property: values mode writes what live mode caches (rel 1e-15: one rounding at most)
         assert value == (pytest.approx(stored, rel=1e-15) if isinstance(stored, float) else stored), row
 
 
@@ -234,6 +239,7 @@ def test_gamma_methods_and_check_interval(tmp_path):
     # check value: known-shape estimate Q(a, c/s) with s = mean/a, by scipy.stats.gamma
     mean = float(np.mean(lifetimes[:stop]))
     expected = stats.gamma.sf(THRESHOLD, 2.4, scale=mean / 2.4)
+    # check value: scipy.stats.gamma.sf (above); tolerance 1e-12, a few roundings apart in the body
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(expected, rel=1e-12)
     assert block["Shape of the model (known-shape only)"] == 2.4
 
@@ -285,6 +291,8 @@ def test_suspended_units_in_a_gamma_method_and_the_counts_in_the_block(tmp_path,
     flags = [isinstance(v, str) for v in lifetimes[:used]]
     from tailstop.core.methods import estimate_tail
     expected = estimate_tail(times, THRESHOLD, "known-shape", 2.4, survivors=flags).p
+    # property: the block shows the censored estimate of the units used (estimate_tail, checked against scipy
+    # in tests/test_censored_fits.py); tolerance 1e-12 for the route through the cells
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(expected, rel=1e-12)
     if live:
         computed = evaluate_workbook(result.path)
@@ -292,6 +300,7 @@ def test_suspended_units_in_a_gamma_method_and_the_counts_in_the_block(tmp_path,
             stored = sheet.cell(row, 11).value
             engine = computed.get((LOG_SHEET.upper(), f"K{row}"))
             if isinstance(stored, float):
+                # property: the engine recomputes the cached values (tolerance 1e-12, its order of operations)
                 assert engine == pytest.approx(stored, rel=1e-12), row
 
 
@@ -519,6 +528,7 @@ def test_the_check_sees_a_cell_written_twice_or_missing(log_path):
     changed[LOG_SHEET][key] = changed[LOG_SHEET][key] + 0.1
     assert not cell_check.package_holds(buffer.getvalue(), titles, changed)
     assert [str(d) for d in cell_check.differences(changed, cells)] == [
+        # property: the refusal names the cell, its old and its new value (a change of 0.1 made here)
         f"'{LOG_SHEET}'!D5 was {cells[LOG_SHEET][key] + 0.1!r}, is now {cells[LOG_SHEET][key]!r}"]
 
 

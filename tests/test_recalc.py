@@ -61,18 +61,21 @@ def recalculated(tmp_path):
 def test_tailstop_formula_matches_scipy(recalculated):
     _, _, values = recalculated
     # check value: scipy.special.gammaincc as the reference library
+    # tolerance 1e-12: gammaincc in the body, through the formula engine and a cell
     assert values["C1"].value == pytest.approx(special.gammaincc(SHAPE, THRESHOLD / SCALE), rel=1e-12)
 
 
 def test_built_in_gamma_distribution_matches_scipy(recalculated):
     _, _, values = recalculated
     # check value: scipy.stats.gamma.sf as the reference library
+    # tolerance 1e-10: the engine's built-in GAMMA.DIST, another implementation, not held to our 1e-12
     assert values["C3"].value == pytest.approx(stats.gamma.sf(THRESHOLD, SHAPE, scale=SCALE), rel=1e-10)
 
 
 def test_chi_square_critical_value_through_udf_prefix(recalculated):
     _, _, values = recalculated
     # check value: NIST/SEMATECH §1.3.6.7.4, chi-square 1 df upper 0.05 point 3.841 (gamma shape 1/2, scale 2)
+    # tolerance 2e-4: the table gives 3 decimals, which moves p by at most about 1e-4
     assert values["C8"].value == pytest.approx(0.05, abs=2e-4)
 
 
@@ -89,6 +92,7 @@ def test_array_result_fills_its_block(recalculated):
     share = sum(value > THRESHOLD for value in observed) / len(observed)
     odds = share / (1 - share)
     # check value: METHOD.md §2, p_low = q/(d+q), p_high = d q/(1 + d q)
+    # tolerance 1e-12: the closed forms in doubles, through the engine
     assert values["D1"].value == pytest.approx(odds / (ACCURACY + odds), rel=1e-12)
     assert values["E1"].value == pytest.approx(ACCURACY * odds / (1 + ACCURACY * odds), rel=1e-12)
     assert values["C10"].value == pytest.approx(values["E1"].value - values["D1"].value, rel=1e-12)
@@ -97,6 +101,7 @@ def test_array_result_fills_its_block(recalculated):
 def test_ordinary_formulas_and_errors(recalculated):
     _, result, values = recalculated
     observed = [value for value in lifetimes() if value is not None]
+    # check value: the plain sum of the observed values (Python's sum); tolerance 1e-12 for the engine's order
     assert values["C4"].value == pytest.approx(sum(observed), rel=1e-12)
     assert values["C5"].value.startswith("#TAILSTOP!")
     assert values["C6"].value == "message"
@@ -129,6 +134,7 @@ def test_recalculating_a_recalculated_book_is_stable(recalculated, tmp_path):
     second = recalc(result.path, tmp_path / "again.xlsx")
     for key, value in result.values.items():
         if isinstance(value, float):
+            # property: recalculating again gives the same figures (1e-12: the engine's rounding)
             assert second.values[key] == pytest.approx(value, rel=1e-12)
         else:
             assert second.values[key] == value
@@ -168,6 +174,7 @@ def test_set_formula_writes_values_a_reader_sees(tmp_path):
     target = tmp_path / "plan.xlsx"
     save_with_cached_values(book, target, cached)
     values = openpyxl.load_workbook(target, data_only=True)["Plan"]
+    # property: a cached float round-trips its repr exactly (rel 1e-15: one rounding at most)
     assert values["B2"].value == pytest.approx(np.exp(-1.0), rel=1e-15)  # repr round-trips a float exactly
     assert [[cell.value for cell in row] for row in values["B3:C4"]] == [[0.25, 0.5], [True, "a<b&c"]]
     assert values["B6"].value.startswith("#TAILSTOP! accuracy")
@@ -231,5 +238,6 @@ def test_an_array_formula_nothing_else_reads_gets_its_values(tmp_path):
     result = recalc(tmp_path / "lone.xlsx", tmp_path / "lone-values.xlsx")
     # check value: METHOD.md §2 with 3 of 4 units beyond 300, q = 3, d = 2:
     # p_low = q / (d + q) = 3/5, p_high = d q / (1 + d q) = 6/7
+    # tolerance 1e-12: two fractions in doubles through the engine
     assert result.values[("Log", "D1")] == pytest.approx(3 / 5, rel=1e-12)
     assert result.values[("Log", "E1")] == pytest.approx(6 / 7, rel=1e-12)
