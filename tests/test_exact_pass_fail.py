@@ -281,6 +281,32 @@ def test_a_damaged_cache_is_recomputed(monkeypatch, damage):
     assert entry["record"]["factor"] == first.factor  # written again, intact
 
 
+@pytest.mark.parametrize("field, value", [("factor", 0.5), ("boundary", 1.0), ("p_low", 0.7), ("factor", math.nan)])
+def test_a_signed_but_impossible_record_is_recomputed(monkeypatch, field, value):
+    # property: a record whose hash matches but whose figures cannot be a tuning (factor below 1 or not
+    # finite, a boundary that is not factor × (z / log d)², p_low outside (0, ½)) is not trusted, whoever
+    # wrote it; the tuning is computed again
+    first = guaranteed.tuning(3.0, 0.9, 2)
+    path = tuning_cache.cache_file()
+    content = json.loads(path.read_text())
+    entry = next(iter(content.values()))
+    entry["record"][field] = value
+    entry["sha256"] = tuning_cache._digest(entry["record"])
+    path.write_text(json.dumps(content))
+    guaranteed.clear_memory_cache()
+    calls = []
+    original = guaranteed.tune
+
+    def counted(*args):
+        calls.append(args)
+        return original(*args)
+
+    monkeypatch.setattr(guaranteed, "tune", counted)
+    again = guaranteed.tuning(3.0, 0.9, 2)
+    assert len(calls) == 1
+    assert (again.factor, again.boundary, again.p_low) == (first.factor, first.boundary, first.p_low)
+
+
 @pytest.mark.parametrize("accuracy, confidence", [(3.0, 0.9), (5.0, 0.9)])
 def test_the_table_in_the_method_page_is_what_the_tuning_gives(accuracy, confidence):
     from pathlib import Path
