@@ -156,8 +156,9 @@ def test_pass_fail_survivors_count_as_beyond_the_threshold():
     # tolerance 1e-15: a product of two exact fractions
     assert TAIL_PROB_EST(column, 1100.0) == pytest.approx(0.6, rel=1e-15)
     assert not is_message(TAIL_PROB_EST(column, 1000.0, "fitted-shape"))
-    refused = GAMMA_FIT_SHAPE(column)
-    assert is_message(refused) and "row 2 marks a survivor" in refused, refused
+    assert not is_message(GAMMA_FIT_SHAPE(column))        # the fit reads 1000+ as suspended
+    refused = GAMMA_FIT_PVALUE(column)
+    assert is_message(refused) and "units marked +" in refused and "FIT_COMPARE" in refused, refused
 
 
 def test_method_names_are_forgiving():

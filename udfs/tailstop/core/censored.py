@@ -31,7 +31,9 @@ from functools import partial
 
 import numpy as np
 
-from .models import get_model
+from .models import MODEL_NAMES, get_model
+from .models.base import ModelFit
+from .models.compare import ModelComparison
 from .models import censored_log_location as _log_location
 from .models.censored_prefixes import prefix_fits
 from .models.gamma import censored as _gamma_censored
@@ -40,7 +42,7 @@ from .probability import TailProbability
 from .product_limit import prefix_counts, product_limit, regularized_sigma2
 
 __all__ = ["FAILURES_NEEDED", "CensoredEstimate", "censored_units", "is_censored", "failures_message",
-           "censored_estimate", "CensoredRule", "censoring_notes"]
+           "censored_estimate", "censored_fit", "compare_censored_models", "FIT_CHECK_NEEDS_FAILURES", "CensoredRule", "censoring_notes"]
 
 # The fewest failures each method needs before it can estimate anything.
 FAILURES_NEEDED = {"pass-fail": 1, "known-shape": 1, "fitted-shape": 2}
@@ -226,9 +228,7 @@ def _gamma_fit(data, threshold, method, shape):
         with np.errstate(all="ignore"):
             sigma2 = fits.sigma2_known_shape(failures, suspensions, shape_value, log_scale, threshold, data.units)
         return shape_value, log_scale, sigma2
-    with np.errstate(all="ignore"):
-        start = shape_from_log_ratio(np.where(data.log_ratio > 0, data.log_ratio, np.nan))
-    shape_value, log_scale = fits.fit_shape_and_scale(failures, suspensions, start)
+    shape_value, log_scale = _gamma_shape_and_scale(data)
     ok = np.isfinite(shape_value)
     safe = np.where(ok, shape_value, 1.0)
     with np.errstate(all="ignore"):
@@ -237,10 +237,28 @@ def _gamma_fit(data, threshold, method, shape):
     return shape_value, log_scale, np.where(ok, sigma2, np.nan)
 
 
+def _gamma_shape_and_scale(data):
+    """The joint censored ML (shape, log-scale) of the gamma, per prefix; NaN where none exists."""
+    with np.errstate(all="ignore"):
+        start = shape_from_log_ratio(np.where(data.log_ratio > 0, data.log_ratio, np.nan))
+    return _gamma_censored.fit_shape_and_scale(data.failures, data.suspensions, start)
+
+
+def _log_times(data):
+    return ((np.log(data.failure_times[0]), data.failure_times[1]),
+            (np.log(data.suspensions[0]), data.suspensions[1]))
+
+
+def _log_location_shape_and_scale(data, *, family):
+    """The joint censored ML (shape, log-scale) of the Weibull or lognormal, per prefix; NaN where none exists."""
+    with np.errstate(all="ignore"):
+        location, log_width = _log_location.fit_shape_and_scale(family, *_log_times(data))
+        return family.shape_from_width(np.exp(log_width)), location
+
+
 def _log_location_fit(data, threshold, method, shape, *, family):
     fits = _log_location
-    failures = (np.log(data.failure_times[0]), data.failure_times[1])
-    suspensions = (np.log(data.suspensions[0]), data.suspensions[1])
+    failures, suspensions = _log_times(data)
     with np.errstate(all="ignore"):
         if method == "known-shape":
             shape_value = np.full(data.units.shape, float(shape))
@@ -258,6 +276,59 @@ def _log_location_fit(data, threshold, method, shape, *, family):
 # The censored maximum likelihood of each model: gamma's own, and the log-location-scale one of the others.
 _FITS = {"gamma": _gamma_fit, **{name: partial(_log_location_fit, family=family)
                                  for name, family in _log_location.FAMILIES.items()}}
+
+
+# The joint censored ML of each model: data -> (shape, log-scale) per prefix.
+_SHAPE_AND_SCALE = {"gamma": _gamma_shape_and_scale, **{name: partial(_log_location_shape_and_scale, family=family)
+                                                        for name, family in _log_location.FAMILIES.items()}}
+
+
+def censored_fit(times, suspended, model="gamma") -> ModelFit:
+    """The maximum likelihood fit (location 0) of a log with suspended units: the fit the estimates use.
+
+    Each failure contributes the density, each suspension the survival
+    function; ``log_likelihood`` is Σ log f(failures) + Σ log P(X > t) over
+    the suspensions, so the AIC of the three models fitted to one log compare
+    as with complete data. Without suspensions this is the complete-data fit.
+
+    Raises
+    ------
+    ValueError
+        Fewer than 2 failures, or a likelihood without a maximum.
+    """
+    x = np.asarray(times, dtype=float).ravel()
+    flags = np.asarray(suspended, dtype=bool).ravel()
+    lifetime = get_model(model)
+    _check_model(lifetime.name)
+    failures = int((~flags).sum())
+    if failures < FAILURES_NEEDED["fitted-shape"]:
+        raise ValueError(f"the {lifetime.title} fit needs at least {FAILURES_NEEDED['fitted-shape']} failures "
+                         f"(units not marked +; found {failures})")
+    data = _prefix_data(x, flags, np.array([x.size]), lifetime.name)
+    shape, log_scale = (float(v[0]) for v in _SHAPE_AND_SCALE[lifetime.name](data))
+    if not (np.isfinite(shape) and np.isfinite(log_scale)):
+        raise ValueError(f"the {lifetime.title} likelihood of these failures and suspensions has no maximum "
+                         f"(found {failures} failures); test more units to failure")
+    scale = float(np.exp(log_scale))
+    log_likelihood = float(np.sum(lifetime.log_pdf(x[~flags], shape, scale))
+                           + np.sum(lifetime.log_sf(x[flags], shape, scale)))
+    return ModelFit(lifetime.name, shape, scale, int(x.size), log_likelihood)
+
+
+# What the fit check says of a log with suspended units.
+FIT_CHECK_NEEDS_FAILURES = ("the fit p-value needs every unit's failure time: the Anderson-Darling test has no "
+                            "standard form for units marked +")
+
+
+def compare_censored_models(times, suspended) -> tuple:
+    """Every model's censored fit (``censored_fit``), best (lowest AIC) first; ties keep the table's order.
+
+    No fit check p-value (``FIT_CHECK_NEEDS_FAILURES``): AIC compares the
+    models' likelihoods of the same failures and suspensions.
+    """
+    rows = [ModelComparison(censored_fit(times, suspended, name), None, FIT_CHECK_NEEDS_FAILURES)
+            for name in MODEL_NAMES]
+    return tuple(sorted(rows, key=lambda row: row.aic))
 
 
 # Estimates with a closed form from running sums: (times, suspended, prefixes, shape, threshold) -> (log scale, σ̂²)

@@ -227,6 +227,10 @@ def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
     log = read_log_cells(values, name)
     if log.problem:
         raise InputError(log.problem)
+    return _failure_times(log, name, minimum)
+
+
+def _failure_times(log, name, minimum) -> CleanRange:
     log = log.refuse(log.survivors, lambda value: f"marks a survivor ({value:g}+); this needs failure times")
     if log.problem:
         raise InputError(log.problem)
@@ -238,6 +242,22 @@ def clean_lifetimes(values, name="observations", *, minimum=0) -> CleanRange:
         raise InputError(f"{name}: the lifetimes are too large to add up (the largest is "
                          f"{float(np.max(log.values)):.3g}); enter them in a larger unit, e.g. thousands of hours")
     return CleanRange(values=log.values, rows=log.rows, n_rows=log.n_rows)
+
+
+def clean_log_units(values, name="observations", *, minimum=2):
+    """(times, suspended or None) of a log's units, failed or marked + (suspended), for a fit.
+
+    InputError at the first unusable cell; a log without a + cell gets the
+    checks of ``clean_lifetimes``.
+    """
+    log = read_log_cells(values, name)
+    if log.problem:
+        raise InputError(log.problem)
+    if not log.survivors.any():
+        return _failure_times(log, name, minimum).values, None
+    if log.values.size < minimum:
+        raise InputError(f"{name}: needs at least {minimum} lifetimes (found {log.values.size})")
+    return log.values, log.survivors
 
 
 def number(value, name) -> float:

@@ -18,7 +18,9 @@ from ..core.methods import (
     model_sigma2,
     pass_fail_sigma2_from_p,
 )
+from ..core.censored import FIT_CHECK_NEEDS_FAILURES, censored_fit
 from ..core.models import DEFAULT_MODEL, MODEL_NAMES, get_model
+from ..core.models.compare import fit_model
 from ..core.time_terminated import check_test_time, time_terminated_sigma2
 from ..core.models.gamma.fit import fit_gamma, gamma_fit_pvalue
 from . import cells
@@ -263,28 +265,47 @@ def ACCURACY_FOR_UNITS(units, threshold, shape, scale, confidence, method=None, 
     return d
 
 
-def _fit(observations):
+# What instead of a fit p-value when the log holds suspended units.
+INSTEAD_OF_PVALUE = ("compare the models' censored fits with FIT_COMPARE, or use pass-fail, which needs no model")
+
+
+def fit_log(observations, model):
+    """The ML fit of a model to the cells: censored when a unit is marked +; InputError where none exists."""
+    times, suspended = cells.clean_log_units(observations)
     try:
-        return fit_gamma(cells.clean_lifetimes(observations, minimum=2).values)
+        if suspended is None:
+            return fit_model(times, model)
+        return censored_fit(times, suspended, model)
     except ValueError as problem:
         raise cells.InputError(str(problem)) from None
 
 
-@formula(ranges=("observations",), observations=HELP["failure_times"])
+def failure_times_for_check(observations):
+    """The failure times of a complete log for a fit check; a log with + units is told what to use instead."""
+    times, suspended = cells.clean_log_units(observations)
+    if suspended is not None:
+        raise cells.InputError(f"{FIT_CHECK_NEEDS_FAILURES} ({int(suspended.sum())} here); {INSTEAD_OF_PVALUE}")
+    return times
+
+
+@formula(ranges=("observations",), observations=HELP["observations"])
 def GAMMA_FIT_SHAPE(observations):
-    """Gamma shape fitted by maximum likelihood to the lifetimes (location 0)."""
-    return _fit(observations).shape
+    """Gamma shape fitted by maximum likelihood to the lifetimes (location 0; units marked + as suspended)."""
+    return fit_log(observations, DEFAULT_MODEL).shape
 
 
-@formula(ranges=("observations",), observations=HELP["failure_times"])
+@formula(ranges=("observations",), observations=HELP["observations"])
 def GAMMA_FIT_SCALE(observations):
-    """Gamma scale fitted by maximum likelihood to the lifetimes, in their unit (location 0)."""
-    return _fit(observations).scale
+    """Gamma scale fitted by maximum likelihood to the lifetimes, in their unit (location 0; units marked + as suspended)."""
+    return fit_log(observations, DEFAULT_MODEL).scale
 
 
 @formula(ranges=("observations",), observations=HELP["failure_times"])
 def GAMMA_FIT_PVALUE(observations):
     """Goodness-of-fit p-value of the gamma model (Anderson-Darling, estimated parameters); small means a poor fit."""
-    values = cells.clean_lifetimes(observations, minimum=2).values
-    _fit(values)
+    values = failure_times_for_check(observations)
+    try:
+        fit_gamma(values)
+    except ValueError as problem:
+        raise cells.InputError(str(problem)) from None
     return gamma_fit_pvalue(values)
