@@ -437,3 +437,43 @@ def test_the_new_conditional_format_goes_before_what_follows_formats(after):
     tail = b'</sheetData><mergeCells count="1"><mergeCell ref="A1:B1"/></mergeCells>' + after + b"</worksheet>"
     edited = sheet_stream.edit_tail(tail, b"<conditionalFormatting/>")
     assert edited == tail.replace(after, b"<conditionalFormatting/>" + after)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.sets(st.integers(1, 60)), st.sets(st.integers(1, 60)), st.integers(1, 60), st.integers(0, 12))
+def test_cells_released_from_the_occupancy_are_free_and_no_others(taken, released, first, length):
+    # property: after release, a column holds exactly the rows taken and not released (plain set arithmetic)
+    from tailstop.workbooks.log_layout import Occupancy
+
+    occupancy = Occupancy.from_keys([(row, 3) for row in taken] + [(row, 4) for row in taken])
+    occupancy.release(3, sorted(released))
+    last = first + length
+    left = [row for row in sorted(taken - released) if first <= row <= last]
+    assert occupancy.first_taken(3, first, last) == (left[0] if left else None)
+    kept = [row for row in sorted(taken) if first <= row <= last]
+    assert occupancy.first_taken(4, first, last) == (kept[0] if kept else None)  # another column untouched
+
+
+def test_a_user_cell_taken_out_with_an_earlier_run_stops_the_write(log_path, monkeypatch):
+    # the earlier run's cells are taken out of their rows; taking one of the user's too must be refused
+    annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)
+    real = sheet_stream._without_cells
+
+    def greedy(content, row, columns):
+        return real(content, row, {*columns, 4})  # also the lifetime in column D
+
+    monkeypatch.setattr(sheet_stream, "_without_cells", greedy)
+    before = log_path.read_bytes()
+    with pytest.raises(AnnotateRefused, match=r"'Bench log'!D[0-9]+ was [0-9.]+, is now empty\n.*Nothing was written"):
+        annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)
+    assert log_path.read_bytes() == before
+
+
+def test_an_earlier_run_left_in_a_row_stops_the_write(log_path, monkeypatch):
+    # the other way round: an earlier decision not taken out meets the new one; the stream gives up before writing
+    annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)
+    monkeypatch.setattr(sheet_stream, "_without_cells", lambda content, row, columns: content)
+    before = log_path.read_bytes()
+    with pytest.raises(AnnotateRefused, match="cannot be edited as a stream: a new cell in column"):
+        annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)
+    assert log_path.read_bytes() == before

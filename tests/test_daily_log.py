@@ -7,6 +7,7 @@ byte), and the written books are opened in headless LibreOffice.
 from __future__ import annotations
 
 import datetime as dt
+import re
 from pathlib import Path
 
 import numpy as np
@@ -15,12 +16,12 @@ import pytest
 from openpyxl.utils.cell import range_boundaries
 
 import tailstop.workbooks.annotate_stream as annotate_stream
-from libreoffice import LibreOfficeFailed, convert_with_libreoffice, find_soffice
+from libreoffice import LibreOfficeFailed, convert_with_libreoffice
 from tailstop.commands import main
 from tailstop.workbooks.annotate import annotate
 from tailstop.workbooks.annotation import LIVE_MARGIN
 from tailstop.workbooks.cached_values import EXCEL_ERRORS
-from tailstop.workbooks.log_layout import DECISION_HEADER, RulePlan
+from tailstop.workbooks.log_layout import BLOCK_TITLE, DECISION_HEADER, RulePlan
 from test_annotate import all_cells, rule_stop
 
 SHEET = "Bearing test"
@@ -174,13 +175,6 @@ def test_into_a_column_of_the_user_s_choice(tmp_path, capsys, streaming):
 # --------------------------------------------------------------------------- in a spreadsheet program
 
 
-@pytest.fixture(scope="module")
-def soffice():
-    if find_soffice() is None:
-        pytest.skip("LibreOffice is not installed (no soffice on PATH)")
-    return find_soffice()
-
-
 def shown_errors(book):
     return [(sheet.title, cell.coordinate, cell.value) for sheet in book.worksheets for row in sheet.iter_rows()
             for cell in row if cell.data_type == "e" or cell.value in EXCEL_ERRORS]
@@ -271,8 +265,6 @@ def test_a_recalculated_live_log_shows_its_values_in_libreoffice(tmp_path, soffi
 
 def tool_marks(path):
     """Every cell reading the decision header or the block's title, and the conditional formats of the sheet."""
-    from tailstop.workbooks.log_layout import BLOCK_TITLE
-
     sheet = openpyxl.load_workbook(path)[SHEET]
     marks = sorted(cell.coordinate for row in sheet.iter_rows() for cell in row
                    if cell.value in (DECISION_HEADER, BLOCK_TITLE))
@@ -284,7 +276,8 @@ def test_running_again_on_an_unchanged_log_changes_no_cell(tmp_path, streaming, 
     path = bearing_log(tmp_path / "bearing.xlsx", average=False)
     annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
     once = all_cells(path), tool_marks(path)
-    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    again = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    assert (again.copied_parts is not None) == streaming  # a long log is written again as a stream
     assert (all_cells(path), tool_marks(path)) == once
     margin = LIVE_MARGIN if live else 0  # live decisions reach empty rows below the log
     assert once[1] == (["E3", "I1"], [f"E4:E{65 + margin}"])  # one decision column, one block, one STOP highlight
@@ -306,6 +299,7 @@ def test_rows_added_since_the_last_run_get_their_decisions(tmp_path, streaming, 
     book.save(path)
     before = all_cells(path)
     second = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    assert (second.copied_parts is not None) == streaming
     assert (second.decision_column, second.block.split(":")[0]) == (first.decision_column, "I1")
     assert tool_marks(path) == (["E3", "I1"], [f"E4:E{rows[-1] + (LIVE_MARGIN if live else 0)}"])
     shown = openpyxl.load_workbook(path, data_only=True)[SHEET]
@@ -320,6 +314,127 @@ def test_rows_added_since_the_last_run_get_their_decisions(tmp_path, streaming, 
         if openpyxl.utils.cell.coordinate_from_string(coordinate)[0] not in ("E", "I", "J"):
             assert after[SHEET][coordinate] == content, coordinate
     assert after["Rig notes"] == before["Rig notes"]
+
+
+def type_units(path, hours, first_units):
+    """The units after ``first_units`` typed below the log and a note beside the block, as a user adds them a week
+    later (through openpyxl, as a spreadsheet program saves the book)."""
+    book = openpyxl.load_workbook(path)
+    sheet = book[SHEET]
+    rows = log_rows(hours)
+    for index in range(first_units, len(hours)):
+        sheet.cell(rows[index], 1, f"SN-{1000 + index}")
+        sheet.cell(rows[index], 3, hours[index])
+    sheet["L2"] = "checked by R. Ortiz"
+    book.save(path)
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_running_again_on_a_grown_log_is_running_once_on_it_and_loses_nothing(tmp_path, streaming, live):
+    from book_contents import assert_nothing_lost
+
+    hours = bearing_hours(90)
+    path = bearing_log(tmp_path / "bearing.xlsx", hours[:40], average=False)
+    reference = bearing_log(tmp_path / "reference.xlsx", hours[:40], average=False)
+    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    type_units(path, hours, 40)
+    type_units(reference, hours, 40)  # the same log, never annotated
+    again = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    once = annotate(reference, column="C", plan=the_plan(), out=tmp_path / "once.xlsx", live=live)
+    assert (again.copied_parts is not None) == streaming
+    # the earlier run leaves no trace: the cells are those of one run on the grown log
+    assert all_cells(again.path) == all_cells(once.path)
+    assert all_cells(again.path, data_only=True) == all_cells(once.path, data_only=True)
+    assert tool_marks(again.path) == tool_marks(once.path)
+    # everything the user put into the book, read by openpyxl alone (book_contents), is still there
+    low, _, high, _ = range_boundaries(again.block)
+    assert_nothing_lost(reference, again.path, added_columns={SHEET: {again.decision_column, *range(low, high + 1)}})
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_a_streamed_run_again_on_an_unchanged_log_writes_the_same_bytes(tmp_path, live, monkeypatch):
+    # stronger than the same cells: the earlier run's cells, its formats and its STOP highlight are taken again
+    monkeypatch.setattr(annotate_stream, "STREAM_FROM_BYTES", 1)
+    from test_safe_io import read_parts
+
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    once = read_parts(path)
+    again = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    assert again.copied_parts is not None
+    assert read_parts(path) == once
+
+
+def test_a_log_run_again_shows_its_values_in_libreoffice(tmp_path, soffice, streaming):
+    hours = bearing_hours(90)
+    path = bearing_log(tmp_path / "bearing.xlsx", hours[:40], average=False)
+    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=True)
+    type_units(path, hours, 40)
+    again = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=True)
+    shown = openpyxl.load_workbook(convert_with_libreoffice(again.path, tmp_path / "lo"), data_only=True)[SHEET]
+    assert shown_errors(shown.parent) == []
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
+    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    assert [shown.cell(row, 5).value for row in log_rows(hours)] == expected
+    block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
+    assert block["Units used, N"] == stop
+
+
+def append_units(path, hours, first_units):
+    """The units after ``first_units`` added as rows at the end of the log sheet's markup, without loading the
+    book: the serial, the date (in the style of the log's first date) and the hours to failure."""
+    from test_safe_io import read_parts, write_parts
+
+    parts = read_parts(path)
+    name = "xl/worksheets/sheet1.xml"
+    xml = parts[name]
+    date_style = re.search(rb'<c r="B4" s="([0-9]+)"', xml).group(1).decode()
+    rows = log_rows(hours)
+    added = "".join(f'<row r="{rows[index]}"><c r="A{rows[index]}" t="inlineStr"><is><t>SN-{1000 + index}</t></is>'
+                    f'</c><c r="B{rows[index]}" s="{date_style}"><v>{46083 + index}</v></c><c r="C{rows[index]}">'
+                    f'<v>{hours[index]!r}</v></c></row>' for index in range(first_units, len(hours)))
+    assert rows[first_units - 1] >= max(int(number) for number in re.findall(rb'<row r="([0-9]+)"', xml))
+    parts[name] = xml.replace(b"</sheetData>", added.encode() + b"</sheetData>", 1)
+    write_parts(path, parts)
+
+
+def test_a_log_grown_long_is_written_again_as_a_stream_and_loses_nothing(tmp_path, monkeypatch):
+    # the weekly step on a log that outgrew the openpyxl path: annotated when short, then some 62,000 units added
+    from book_contents import assert_nothing_lost
+
+    import tailstop.workbooks.annotate as annotate_module
+
+    hours = bearing_hours(62_000, seed=3)
+    path = bearing_log(tmp_path / "bearing.xlsx", hours[:40], average=False)
+    reference = bearing_log(tmp_path / "reference.xlsx", hours[:40], average=False)
+    first = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False)
+    assert first.copied_parts is None  # a short log goes through openpyxl
+    append_units(path, hours, 40)
+    append_units(reference, hours, 40)  # the same log, never annotated
+    assert annotate_stream.wants_streaming(path)  # its sheet passes STREAM_FROM_BYTES: no test setting needed
+
+    def no_load(*arguments, **options):
+        raise AssertionError("the long log was loaded through openpyxl")
+
+    monkeypatch.setattr(annotate_module, "open_workbook_safely", no_load)
+    again = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False)
+    assert again.copied_parts is not None
+    assert (again.decision_column, again.block) == (first.decision_column, first.block)
+    sheet = openpyxl.load_workbook(path, read_only=True)[SHEET]
+    decisions = [row[0] for row in sheet.iter_rows(min_row=FIRST_ROW, min_col=5, max_col=5, values_only=True)]
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
+    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    assert [decisions[row - FIRST_ROW] for row in log_rows(hours)] == expected
+    assert decisions.count(None) == len(BLANK_AFTER) and len(decisions) == len(hours) + len(BLANK_AFTER)
+    low, _, high, _ = range_boundaries(again.block)
+    assert_nothing_lost(reference, path, added_columns={SHEET: {again.decision_column, *range(low, high + 1)}})
+    # one decision column, one block, one STOP highlight (the earlier one replaced)
+    from test_safe_io import read_parts
+
+    xml = read_parts(path)["xl/worksheets/sheet1.xml"]
+    assert re.findall(rb'<conditionalFormatting sqref="([^"]*)"', xml) == [f"E4:E{log_rows(hours)[-1]}".encode()]
+    top = [row for row in sheet.iter_rows(max_row=30, values_only=True)]
+    assert sum(row.count(DECISION_HEADER) for row in top) == 1 and sum(row.count(BLOCK_TITLE) for row in top) == 1
 
 
 def test_a_unit_typed_below_a_live_log_is_decided_and_counted(tmp_path, streaming, capsys):

@@ -139,5 +139,6 @@ def test_annotating_again_in_place_loses_nothing_of_the_original(original, tmp_p
     earlier = annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, backup=False, streaming=streaming)
     first = original.read_bytes()
     result = annotate(original, column=LOG_HEADER, plan=plan(), in_place=True, streaming=streaming)
+    assert (result.copied_parts is not None) == streaming  # the stream writes the earlier run's cells again
     assert result.backup.read_bytes() == first
     assert_nothing_lost(reference, original, added_columns=tool_columns(earlier, result))

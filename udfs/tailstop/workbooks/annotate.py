@@ -102,7 +102,8 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
         Default: when the log's sheet is long (``STREAM_FROM_BYTES``) and its
         markup allows it; the openpyxl path otherwise. True insists
         (``AnnotateRefused`` if the markup does not allow it); False never streams.
-        A sheet annotated before always goes through openpyxl, which replaces the earlier run's cells.
+        Either path recognises a sheet annotated before and writes its decision column and block again
+        where they are.
     force : bool
         With ``in_place``: replace the log although a spreadsheet program's lock file says it is open.
     header_row : int, optional
@@ -128,7 +129,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
                                                          in_place=in_place, backup=backup, live=live,
                                                          header_row=header_row, into=into)
             except annotate_stream.NotStreamable as reason:
-                if streaming and not isinstance(reason, annotate_stream.AnnotatedBefore):
+                if streaming:
                     raise AnnotateRefused(f"{source.name} cannot be edited as a stream: {reason}") from None
     book = open_workbook_safely(source, allow_lossy=allow_lossy)
     losses = [str(loss) for loss in book.tailstop_report.losses]

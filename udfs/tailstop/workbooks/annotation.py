@@ -17,8 +17,8 @@ from .log_layout import (BLOCK_TITLE, CAUTION, DECISION_HEADER, HEADER_SEARCH_RO
 from .package import GRID_COLUMNS
 
 __all__ = ["AnnotateRefused", "AnnotateResult", "BLOCK_GAP", "OUTPUT_SUFFIX", "check_log_column", "default_output",
-           "place_columns", "column_number_of", "first_log_row", "EarlierRun", "earlier_run", "LIVE_MARGIN",
-           "with_margin"]
+           "place_columns", "column_number_of", "first_log_row", "EarlierRun", "earlier_run",
+           "earlier_decision_column", "earlier_block", "is_decision", "LIVE_MARGIN", "with_margin"]
 
 OUTPUT_SUFFIX = "-tailstop"
 BLOCK_GAP = 1  # empty columns between the decision column and the estimate block
@@ -122,26 +122,45 @@ class EarlierRun:
 def earlier_run(values: dict, log: LogRange) -> EarlierRun:
     """``EarlierRun`` from the sheet's cells, {(row, column): raw value} (formulas as their text)."""
     header_row = log.first_row - 1
-    decision = min((column for (row, column), value in values.items()
-                    if row == header_row and value == DECISION_HEADER and column != log.column), default=None)
+    decision = earlier_decision_column(
+        {column: [row] for (row, column), value in values.items() if value == DECISION_HEADER}, log)
     taken = []
     if decision is not None:
         taken = [(row, column) for (row, column), value in values.items()
-                 if column == decision and (row == header_row or (row > header_row and _is_decision(value)))]
+                 if column == decision and (row == header_row or (row > header_row and is_decision(value)))]
+    label, block = earlier_block(values)
+    return EarlierRun(decision, label, taken + block)
+
+
+def earlier_decision_column(header_rows: dict, log: LogRange):
+    """The decision column of an earlier run: the first column, other than the log's, with the header in the
+    log's header row. ``header_rows`` maps column -> rows where the column reads ``DECISION_HEADER``."""
+    header_row = log.first_row - 1
+    return min((column for column, rows in header_rows.items() if header_row in rows and column != log.column),
+               default=None)
+
+
+def earlier_block(values: dict):
+    """(label column or None, [(row, column), ...]) of an earlier run's estimate block.
+
+    The block starts at the first ``BLOCK_TITLE`` cell in the top rows and ends at the caution line below it in
+    the same column; its cells are every cell of its two columns between them. ``values`` needs the top rows only.
+    """
     titles = sorted((row, column) for (row, column), value in values.items()
                     if value == BLOCK_TITLE and row <= HEADER_SEARCH_ROWS)
-    label = None
-    if titles:
-        top, column = titles[0]
-        end = min((row for (row, col), value in values.items() if col == column and row > top and value == CAUTION),
-                  default=None)
-        if end is not None:
-            label = column
-            taken += [(row, col) for (row, col) in values if col in (label, label + 1) and top <= row <= end]
-    return EarlierRun(decision, label, taken)
+    if not titles:
+        return None, []
+    top, label = titles[0]
+    end = min((row for (row, col), value in values.items() if col == label and row > top and value == CAUTION),
+              default=None)
+    if end is None:
+        return None, []
+    return label, [(row, col) for (row, col) in values if col in (label, label + 1) and top <= row <= end]
 
 
-def _is_decision(value):
+def is_decision(value) -> bool:
+    """True for what the decision column of a run holds below its header: a decision, a ``#TAILSTOP!`` text,
+    or a live STOP_DECISION formula."""
     if not isinstance(value, str):
         return False
     return value in DECISION_TEXTS or value.startswith(cells.ERROR_PREFIX) or (

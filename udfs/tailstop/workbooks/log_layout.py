@@ -289,6 +289,28 @@ class Occupancy:
             starts.append(row)
             ends.append(row)
 
+    def release(self, column, rows):
+        """Count the cells of ``column`` in ``rows`` (increasing) as free again: cells about to be written over."""
+        starts, ends = self._starts.get(column), self._ends.get(column)
+        if not starts:
+            return
+        kept_starts, kept_ends = [], []
+        pending = iter(rows)
+        row = next(pending, None)
+        for start, end in zip(starts, ends):
+            while row is not None and row < start:
+                row = next(pending, None)
+            while row is not None and row <= end:
+                if row > start:
+                    kept_starts.append(start)
+                    kept_ends.append(row - 1)
+                start = max(start, row + 1)
+                row = next(pending, None)
+            if start <= end:
+                kept_starts.append(start)
+                kept_ends.append(end)
+        self._starts[column], self._ends[column] = kept_starts, kept_ends
+
     def add_merged(self, min_column, min_row, max_column, max_row):
         self._merged.append((min_column, min_row, max_column, max_row))
 

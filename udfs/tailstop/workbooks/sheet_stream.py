@@ -12,6 +12,9 @@ openpyxl builds every cell of a sheet as a Python object; a full-sheet log
   inserted in row order, and three small elements change: the ``<dimension>``
   reference, ``<cols>`` (the widths of the new columns) and one new
   ``<conditionalFormatting>`` element at its place in the schema order;
+* cells of given columns can be taken out of their rows first (an earlier
+  run's cells, written again), and given ``<conditionalFormatting>``
+  elements out of the part after the rows;
 * the style sheet gets the new fonts, fills, number formats, cell formats
   and the one differential format appended after the existing ones, so no
   existing style index changes.
@@ -47,6 +50,9 @@ __all__ = [
     "merged_ranges",
     "edit_head",
     "edit_tail",
+    "conditional_formats",
+    "first_priority",
+    "without_spans",
     "MAIN_NAMESPACE",
 ]
 
@@ -328,17 +334,19 @@ def cell_markup(coordinate: str, style: int, data_type: str, value, cached=None)
     raise ValueError(f"no markup for a {data_type!r} cell")
 
 
-def extended_rows(sheet: SheetXml, additions, last_column: int):
-    """The sheet's rows with ``additions`` — ``(row, [(column, markup), ...])`` in increasing row order — added.
+def extended_rows(sheet: SheetXml, edits, last_column: int):
+    """The sheet's rows with ``edits`` — ``(row, [(column, markup), ...], {columns})`` in increasing row order —
+    made: the cells of the listed columns taken out of the row, the new cells added.
 
     In a row that exists each new cell goes before the first cell of a
     column right of it, or before ``</row>`` (cells stay in column order; a
     ``spans`` hint is widened to ``last_column``); a row that does not exist
-    is inserted in order. The columns of new cells hold no cell of the row.
-    Yields pieces of bytes.
+    is inserted in order, and a row this editor inserted (no attribute but its
+    number) that is left without a cell is dropped. After the removals, the
+    columns of new cells hold no cell of the row. Yields pieces of bytes.
     """
     xml, limit = sheet.xml, sheet.end
-    pending = next(additions, None)
+    pending = next(edits, None)
     position = sheet.start
     for match in _ROW_TAG.finditer(xml, sheet.start, limit):
         if pending is None:
@@ -347,27 +355,58 @@ def extended_rows(sheet: SheetXml, additions, last_column: int):
         while pending is not None and pending[0] < row:
             yield xml[position: match.start()]
             position = match.start()
-            yield b'<row r="%d">' % pending[0] + _joined(pending[1]) + b"</row>"
-            pending = next(additions, None)
+            yield _new_row(pending)
+            pending = next(edits, None)
         if pending is None or pending[0] != row:
             continue
+        _, cells, removed = pending
         attributes = _widened(match.group(1), last_column)
         yield xml[position: match.start()]
         if match.group(2):
-            yield b"<row" + attributes + b">" + _joined(pending[1]) + b"</row>"
+            yield b"<row" + attributes + b">" + _joined(cells) + b"</row>" if cells else match.group(0)
             position = match.end()
         else:
             end = xml.find(b"</row>", match.end(), limit)
             if end < 0:
                 raise NotStreamable(f"row {row} is not closed")
-            yield b"<row" + attributes + b">"
-            yield _merged_cells(xml[match.end(): end], pending[1])
-            position = end
-        pending = next(additions, None)
+            content = _without_cells(xml[match.end(): end], row, removed) if removed else xml[match.end(): end]
+            if not content and not cells and match.group(1).strip() == b'r="%d"' % row:
+                position = end + len(b"</row>")
+            else:
+                yield b"<row" + attributes + b">"
+                yield _merged_cells(content, cells)
+                position = end
+        pending = next(edits, None)
     yield xml[position: limit]
     while pending is not None:
-        yield b'<row r="%d">' % pending[0] + _joined(pending[1]) + b"</row>"
-        pending = next(additions, None)
+        yield _new_row(pending)
+        pending = next(edits, None)
+
+
+def _new_row(edit):
+    row, cells, _ = edit  # nothing to take out of a row that is not there
+    return b'<row r="%d">' % row + _joined(cells) + b"</row>" if cells else b""
+
+
+def _without_cells(content: bytes, row: int, columns) -> bytes:
+    """A row's cell markup without the cells of ``columns`` (each cell element starts ``<c r="E7"``)."""
+    spans = []
+    for column in columns:
+        start = content.find(b'<c r="%s%d"' % (get_column_letter(column).encode(), row))
+        if start < 0:
+            continue
+        tag_end = content.find(b">", start)
+        if tag_end < 0:
+            raise NotStreamable(f"a cell of row {row} is not closed")
+        if content[tag_end - 1] == ord("/"):
+            end = tag_end + 1
+        else:
+            end = content.find(b"</c>", tag_end)
+            if end < 0:
+                raise NotStreamable(f"a cell of row {row} is not closed")
+            end += len(b"</c>")
+        spans.append((start, end))
+    return without_spans(content, sorted(spans))
 
 
 def _joined(cells):
@@ -377,6 +416,9 @@ def _joined(cells):
 def _merged_cells(content: bytes, cells) -> bytes:
     """A row's cell markup with new ``(column, markup)`` cells put in column order among its own."""
     cells = sorted(cells, key=lambda cell: cell[0])
+    last = _CELL_REF.match(content, max(content.rfind(b'<c r="'), 0))
+    if not cells or last is None or column_index_from_string(last.group(1).decode()) < cells[0][0]:
+        return content + b"".join(markup for _, markup in cells)  # every new cell right of the row's cells
     starts = [(column_index_from_string(found.group(1).decode()), found.start())
               for found in _CELL_REF.finditer(content)]
     pieces, position, index = [], 0, 0
@@ -451,6 +493,30 @@ def edit_tail(tail: bytes, conditional_format: bytes) -> bytes:
     return tail[: found.start()] + conditional_format + tail[found.start():]
 
 
+_CONDITIONAL_FORMAT = re.compile(rb"<conditionalFormatting\b[^>]*?(?:/>|>.*?</conditionalFormatting>)", re.S)
+
+
+def conditional_formats(tail: bytes):
+    """The ``<conditionalFormatting>`` elements of the part after the rows, as (start, end) spans."""
+    return [found.span() for found in _CONDITIONAL_FORMAT.finditer(tail)]
+
+
+def without_spans(data: bytes, spans) -> bytes:
+    """``data`` with the (start, end) spans, in order and not overlapping, cut out."""
+    pieces, position = [], 0
+    for start, end in spans:
+        pieces.append(data[position:start])
+        position = end
+    pieces.append(data[position:])
+    return b"".join(pieces)
+
+
+def first_priority(element: bytes) -> int:
+    """The priority of the first rule of a ``<conditionalFormatting>`` element (1 if it gives none)."""
+    found = _PRIORITY.search(element)
+    return 1 if found is None else int(found.group(1))
+
+
 def next_priority(tail: bytes) -> int:
     """A conditional-format priority above every existing one."""
     return max((int(value) for value in _PRIORITY.findall(tail)), default=0) + 1
@@ -480,9 +546,13 @@ class StylesEdit:
         The ``styles.xml`` part.
     builtin_formats : dict
         Number format code -> built-in id (openpyxl's ``BUILTIN_FORMATS_REVERSE``).
+    existing : optional
+        Finds a format the style sheet already holds: ``existing.cell_format(font, fill, number_format)`` and
+        ``existing.differential_format(dxf)`` give its index or None. An earlier run's formats are then taken
+        again instead of appended once more.
     """
 
-    def __init__(self, xml: bytes, builtin_formats: dict):
+    def __init__(self, xml: bytes, builtin_formats: dict, existing=None):
         root = _STYLES_ROOT.search(xml, 0, 4096)
         namespace = _DEFAULT_NS.search(root.group(0)) if root else None
         if namespace is None or namespace.group(1) != MAIN_NAMESPACE:
@@ -499,6 +569,7 @@ class StylesEdit:
         self.formats = {}
         self.next_format = max([FIRST_CUSTOM_FORMAT - 1] + [int(v) for v in _CUSTOM_FORMAT_IDS.findall(xml)]) + 1
         self.cell_formats = {}
+        self.existing = existing
 
     def _section(self, name):
         found = re.search(rb"<" + name + rb"\b[^>]*?(?:/>|>(.*?)</" + name + rb">)", self.xml, re.S)
@@ -518,6 +589,10 @@ class StylesEdit:
         key = (font, fill, number_format)
         if key in self.cell_formats:
             return self.cell_formats[key]
+        found = None if self.existing is None else self.existing.cell_format(font, fill, number_format)
+        if found is not None:
+            self.cell_formats[key] = found
+            return found
         font_id = 0 if font is None else self._append(b"fonts", font)
         fill_id = 0 if fill is None else self._append(b"fills", fill)
         format_id = self._number_format(number_format)
@@ -532,7 +607,8 @@ class StylesEdit:
         return index
 
     def differential_format(self, dxf: bytes) -> int:
-        return self._append(b"dxfs", dxf)
+        found = None if self.existing is None else self.existing.differential_format(dxf)
+        return self._append(b"dxfs", dxf) if found is None else found
 
     def _append(self, section, markup):
         index = self.counts.get(section, 0) + len(self.added[section])
