@@ -85,6 +85,7 @@ def test_a_result_that_is_not_a_finite_number_becomes_cell_text(returning_formul
 
 
 def test_numpy_results_become_plain_cell_values(returning_formula):
+    # property: numpy scalars and arrays reach the cell as the same plain Python values
     assert returning_formula(np.float64(0.25)) == 0.25 and type(returning_formula(np.float64(0.25))) is float
     assert returning_formula(np.int64(7)) == 7 and type(returning_formula(np.int64(7))) is int
     assert returning_formula(np.array([[1.5], [2.0]])) == [[1.5], [2.0]]

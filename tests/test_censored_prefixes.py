@@ -94,6 +94,8 @@ def test_every_prefix_equals_its_own_censored_fit(model, method, shape, name):
         ours = ours[prefixes - 1]
         assert np.array_equal(np.isnan(ours), np.isnan(theirs))
         finite = np.isfinite(theirs)
+        # property: most sampled prefixes have a fit; the running fits equal the direct ones to 1e-10 (rounding
+        # of running sums against fresh sums; both iterate to about 1e-12)
         assert finite.sum() > 0.8 * prefixes.size
         np.testing.assert_allclose(ours[finite], theirs[finite], rtol=1e-10, atol=0)
 
@@ -116,11 +118,13 @@ def test_prefixes_against_a_numerical_maximisation(model, method, shape):
         if method == "known-shape":
             best = optimize.minimize_scalar(lambda u: negative(np.log(shape), u),
                                             bracket=(start_scale - 1, start_scale + 1), tol=1e-12)
+            # tolerance 1e-7: minimize_scalar's tol=1e-12 on the log-likelihood leaves the argmax good to about that
             assert np.exp(fits.location[n - 1]) == pytest.approx(np.exp(best.x), rel=1e-7)
             continue
         best = optimize.minimize(lambda v: negative(*v), [0.0, start_scale], method="Nelder-Mead",
                                  options={"xatol": 1e-10, "fatol": 1e-12, "maxiter": 4000})
         fitted_shape = log_location.FAMILIES[model].shape_from_width(np.exp(fits.log_width[n - 1]))
+        # tolerance 1e-6: the Nelder-Mead simplex stops within about that of the argmax
         assert fitted_shape == pytest.approx(np.exp(best.x[0]), rel=1e-6)
         assert np.exp(fits.location[n - 1]) == pytest.approx(np.exp(best.x[1]), rel=1e-6)
 

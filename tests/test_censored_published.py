@@ -80,6 +80,7 @@ def test_weibull_slightly_ahead_of_lognormal_as_the_handbook_says():
     weibull, lognormal = _fit("weibull"), _fit("lognormal")
     difference = (-2 * _log_likelihood(stats.lognorm, lognormal.shape, lognormal.scale)
                   + 2 * _log_likelihood(stats.weibull_min, weibull.shape, weibull.scale))
+    # tolerance: each AIC is printed to 2 decimals, so their difference is good to 0.01
     assert difference == pytest.approx(LOGNORMAL_AIC - WEIBULL_AIC, abs=1e-2)   # both AICs rounded to 0.01
 
 
@@ -90,6 +91,7 @@ def test_probability_formula_on_the_log_as_a_sheet_holds_it(threshold):
     p = TAIL_PROB_EST(cells, threshold, method="fitted-shape", model="weibull")
     expected = math.exp(-((threshold / ETA) ** BETA))     # the handbook's fit, Weibull survival function
     # β rounded to 5e-5 moves log S by (t/η)^β · ln(t/η) · 5e-5 ≤ 1.7e-4 at t = 1000 h: allow 3e-4.
+    # tolerance 3e-4: the printed β's rounding, as worked out above
     assert p == pytest.approx(expected, rel=3e-4)
 
 
@@ -97,4 +99,5 @@ def test_dropping_the_units_taken_off_is_far_from_the_handbook():
     # The same failures without the ten suspensions: the fit the handbook's example warns against.
     # Guards the check above against a likelihood that ignores suspended units.
     estimate = estimate_tail(np.array(FAILURES), 400.0, "fitted-shape", model="weibull")
+    # property: ignoring the suspensions moves η by more than 40 % (the size the test above must be able to see)
     assert abs(estimate.scale / ETA - 1) > 0.4

@@ -197,6 +197,7 @@ def test_libreoffice_shows_what_was_written(tmp_path, soffice, streaming, live):
             stored = written.cell(row, column).value
             seen = shown[SHEET].cell(row, column).value
             if isinstance(stored, float):
+                # property: what the engine shows is what was stored (tolerance 1e-14: a float's text form round-trips)
                 assert seen == pytest.approx(stored, rel=1e-14), (row, column)
             else:
                 assert (seen or None) == (stored or None), (row, column)
@@ -461,6 +462,7 @@ def test_a_unit_typed_below_a_live_log_is_decided_and_counted(tmp_path, streamin
     assert block["Decision after the last row"] == shown["E66"].value
     assert block["Units used, N"] == 61  # all units, the one typed last among them
     # the pass-fail estimate is the share of units beyond the threshold, counted here
+    # check value: the share counted here (definition of the pass-fail estimate); tolerance 1e-15, same k/n
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(
         sum(value > THRESHOLD for value in hours) / 61, rel=1e-15)
 
@@ -494,6 +496,7 @@ def test_bounds_say_the_accuracy_is_not_reached_before_the_stop(tmp_path, stream
             stored = shown.cell(row, 10).value
             engine = computed.get((SHEET.upper(), f"J{row}"))
             if isinstance(stored, float):
+                # property: the engine recomputes the stored block (tolerance 1e-12: its order of operations)
                 assert engine == pytest.approx(stored, rel=1e-12), row
             elif stored not in (None, ""):
                 assert engine == stored, row
@@ -520,5 +523,6 @@ def test_an_array_formula_in_a_book_saved_by_libreoffice_recalculates(tmp_path, 
     # check value: METHOD.md §2, the pass-fail odds q = S/(n-S) and the interval [q/d, q d] on the p scale
     beyond = sum(value > THRESHOLD for value in hours)
     odds = beyond / (len(hours) - beyond)
+    # tolerance 1e-12: the closed forms in doubles, through the engine
     assert shown["L1"].value == pytest.approx(odds / (ACCURACY + odds), rel=1e-12)
     assert shown["M1"].value == pytest.approx(ACCURACY * odds / (1 + ACCURACY * odds), rel=1e-12)

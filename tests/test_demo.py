@@ -122,6 +122,7 @@ def test_the_log_book_shows_the_rule_and_the_final_estimate(built):
     share = sum(v > c for v in lifetimes[:stop]) / stop
     odds = share / (1 - share)
     assert block["Units used, N"] == stop == result.analysis.units_used
+    # tolerance 1e-15 for the same k/n in doubles, 1e-14 for the bounds (a few roundings of q)
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(share, rel=1e-15)
     # check value: METHOD.md §2, [q/d, q d] and [q/(d + q), d q/(1 + d q)]
     assert block["Odds, lower bound (odds/d)"] == pytest.approx(odds / d, rel=1e-14)
@@ -132,6 +133,7 @@ def test_the_log_book_shows_the_rule_and_the_final_estimate(built):
     row = stop + 1
     assert values.cell(row, 4).value == block["Estimate of p = P(life > threshold)"]
     log_odds = math.log(share / (1 - share))
+    # check value: the log-odds of the share counted here; tolerance 1e-14 for the logs of the same doubles
     assert values.cell(row, 7).value == pytest.approx(log_odds, rel=1e-14)
     assert values.cell(row, 8).value == pytest.approx(log_odds - math.log(d), rel=1e-14)
     assert values.cell(row, 9).value == pytest.approx(log_odds + math.log(d), rel=1e-14)
@@ -166,6 +168,7 @@ def test_cached_values_are_what_the_formulas_compute(tmp_path):
         for (title, coordinate), value in stored.items():
             engine = computed[(title.upper(), coordinate)]
             if isinstance(value, float):
+                # property: the formula engine recomputes the cached values (tolerance 1e-12: its order of operations)
                 assert engine == pytest.approx(value, rel=1e-12), (name, title, coordinate)
             else:
                 assert (engine if engine is not None else "") == value, (name, title, coordinate)
@@ -181,6 +184,7 @@ def test_the_planning_book_checks_tail_prob_against_gamma_dist(built):
     assert values[gamma_cell].value is None  # left for the spreadsheet program to compute
     # check value: scipy.special.gammaincc as the reference library
     expected = special.gammaincc(scenario.GUESS_SHAPE, scenario.THRESHOLD / scenario.GUESS_SCALE)
+    # tolerance 1e-13: gammaincc in the body, a few roundings apart
     assert values[tail_cell].value == pytest.approx(expected, rel=1e-13)
     # the inputs are plain cells the formulas refer to
     assert [formulas[f"B{row}"].value for row in range(3, 6)] == [scenario.THRESHOLD, scenario.GUESS_SHAPE,

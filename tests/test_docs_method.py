@@ -49,6 +49,7 @@ def test_method_hand_check_of_the_sample_size():
 
 def test_method_warning_thresholds_match_the_code():
     text = page("method.md")
+    # property: the page and the code name the same levels (5 %: common practice significance level)
     assert notes.FIT_LEVEL == 0.05 and "fit check gives p < 0.05" in text
     assert notes.SHAPE_LEVEL == 0.05 and "rejects at the 5 % level" in text
     assert notes.MIN_PER_SIDE == 5 and "fewer than 5 units beyond the threshold" in text
@@ -70,10 +71,21 @@ def test_method_planning_example():
     assert "raises the critical value from 1.960 to 1.964; the coverage is then 0.952" in text
     assert "about half a unit on average (E[N] = 113.6)" in text
     calibration = operating.calibrate(lambda z: operating.pass_fail_exact(0.3, 1.5, 0.95, 10, stop_z=z), 0.95)
+    # regression guard: the page's quoted figures (1.964, 0.952, 113.6) against the package; 1.960 is NIST's z
+    # (§1.3.6.7.1). The coverage and E[N] at the calibrated z are checked below against the propagation
+    # written in tests/test_planning_independent.py, at the confidence 2Φ(z) - 1 that z stands for (scipy)
     assert (round(calibration.z, 3), round(calibration.z_calibrated, 3)) == (1.960, 1.964)
     assert round(calibration.calibrated.coverage, 3) == 0.952
     assert round(calibration.calibrated.expected_units, 1) == 113.6
+    # property: calibrating costs about half a unit (the page's words), 0.3 to 0.7
     assert 0.3 < calibration.calibrated.expected_units - table["expected units E[N]"] < 0.7
+    from scipy import stats
+
+    level = 2 * stats.norm.cdf(calibration.z_calibrated) - 1
+    distribution, _, coverage = pass_fail_plan_by_hand(0.3, 1.5, level, 10, 1500)
+    # check value: that propagation, to the 3 and 1 decimals the page quotes
+    assert round(coverage, 3) == 0.952
+    assert round(float(np.dot(np.arange(distribution.size), distribution) / distribution.sum()), 1) == 113.6
 
 
 def _propagate(p, accuracy, confidence, pilot, regularize_everywhere):
@@ -143,6 +155,7 @@ def test_method_table_of_pass_fail_coverage():
 def test_getting_started_figures():
     text = page("getting-started.md")
     assert "=TAIL_PROB(1500, 2, 600)" in text and "returns 0.2873" in text
+    # check value: the Erlang closed form below (0.287297…), to the 4 decimals the page prints
     assert round(TAIL_PROB(1500, 2, 600), 4) == 0.2873
     # check value: the Erlang closed form Q(2, t) = e^{-t}(1 + t) at t = 2.5 (JKB vol. 1): 0.287297…
     assert round(math.exp(-2.5) * 3.5, 4) == 0.2873

@@ -90,6 +90,7 @@ def test_the_package_is_declared_and_bundled(oxt):
 
 
 def test_arguments_arrive_as_xlwings_passes_them(component):
+    # property: the values pass through unchanged, only their nesting follows xlwings' (a scalar, a 2-D list)
     assert component.to_argument(((3.0,),), is_range=False) == 3.0
     assert component.to_argument(((3.0,),), is_range=True) == [[3.0]]
     assert component.to_argument(((1.0, ""), ("1500+", 2.0)), is_range=True) == [[1.0, ""], ["1500+", 2.0]]
@@ -97,6 +98,7 @@ def test_arguments_arrive_as_xlwings_passes_them(component):
 
 
 def test_results_leave_as_calc_takes_them(component):
+    # property: the values pass through unchanged, only their nesting follows Calc's (tuples of rows)
     assert component.to_result(0.25, "number") == 0.25
     assert component.to_result(None, "text") == ""
     assert component.to_result([0.1, 0.4], "row") == ((0.1, 0.4),)
@@ -149,6 +151,7 @@ def test_an_optional_zero_the_formula_refuses_counts_as_left_empty(component):
             return f"#TAILSTOP! check_every must be at least 1 (got {check_every:g})"
         return (threshold, check_every, seed)
 
+    # property: an optional 0 the formula refuses counts as left empty (Calc passes a blank as 0); others stay
     assert component._evaluate(formula, spec, [5.0, 0.0, 0.0]) == (5.0, None, None)
     assert component._evaluate(formula, spec, [5.0, 2.0, 0.0]) == (5.0, 2.0, 0.0)  # an accepted 0 stays
     assert component._evaluate(formula, spec, [5.0, -1.0, None]).startswith("#TAILSTOP! check_every")

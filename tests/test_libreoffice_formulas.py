@@ -180,6 +180,7 @@ def same(shown, expected, rel_tol=DIGITS):
     if expected is None or expected == "":
         return shown in (None, "")
     if isinstance(expected, (int, float)) and not isinstance(expected, bool):
+        # tolerance: DIGITS (15 significant digits LibreOffice keeps); abs 1e-300 lets a 0 equal a subnormal
         return isinstance(shown, (int, float)) and math.isclose(shown, expected, rel_tol=rel_tol, abs_tol=1e-300)
     return shown == expected
 
@@ -218,8 +219,10 @@ def test_every_cell_computed_by_libreoffice_equals_python(computed):
 def test_a_value_known_independently(computed):
     _, values, _ = computed
     # check value: Erlang identity Q(2, t) = e^{-t} (1 + t) (Johnson, Kotz & Balakrishnan, vol. 1), t = 2.5
+    # tolerance 1e-14: LibreOffice keeps 15 significant digits when it saves
     assert math.isclose(values["B1"].value, math.exp(-2.5) * 3.5, rel_tol=1e-14)
     # check value: Weibull survival exp(-(c/eta)^beta) in closed form, c = 1000, beta = 2, eta = 400
+    # tolerance 1e-14: as above
     assert math.isclose(values["B7"].value, math.exp(-6.25), rel_tol=1e-14)
 
 
@@ -273,6 +276,7 @@ def test_calc_stores_the_programmatic_name_and_refuses_the_short_one(session):
     values = openpyxl.load_workbook(saved, data_only=True).active
     assert values["A1"].value == "#NAME?"
     # check value: Erlang identity Q(2, t) = e^{-t} (1 + t), t = 2.5
+    # tolerance 1e-14: LibreOffice keeps 15 significant digits when it saves
     assert math.isclose(values["A2"].value, math.exp(-2.5) * 3.5, rel_tol=1e-14)
 
 
@@ -306,6 +310,7 @@ def test_install_for_an_ordinary_user_with_no_profile_yet(office, tmp_path_facto
                        capture_output=True, timeout=300, cwd=home, check=True)
         value = openpyxl.load_workbook(home / "out" / "book.xlsx", data_only=True).active["A1"].value
         # check value: Erlang identity Q(2, t) = e^{-t} (1 + t), t = 2.5
+        # tolerance 1e-14: LibreOffice keeps 15 significant digits when it saves
         assert math.isclose(value, math.exp(-2.5) * 3.5, rel_tol=1e-14)
     finally:
         shutil.rmtree(home, ignore_errors=True)

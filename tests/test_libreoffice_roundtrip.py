@@ -68,6 +68,7 @@ def test_gamma_dist_in_libreoffice_agrees_with_scipy(tmp_path):
     for row, (threshold, shape, scale) in enumerate(GAMMA_POINTS, start=1):
         # check value: scipy.special.gammaincc as the reference library
         expected = special.gammaincc(shape, threshold / scale)
+        # tolerance 1e-9 absolute: LibreOffice's own GAMMA.DIST, another implementation, not held to our digits
         assert math.isclose(shown[f"D{row}"].value, expected, rel_tol=0, abs_tol=1e-9), (row, expected)
 
 
@@ -81,5 +82,6 @@ def test_libreoffice_recomputes_array_formulas_on_load(tmp_path):
     set_formula(book.active, "A4", "=TAIL_PROB(A1,B1,1)", 0.75, cached)
     save_with_cached_values(book, tmp_path / "array.xlsx", cached)
     shown = values_after_libreoffice(tmp_path / "array.xlsx", tmp_path / "lo").active
+    # property: LibreOffice shows the cached value 0.75 it was given (it does not compute a formula it does not know)
     assert shown["A4"].value == 0.75
     assert shown["A3"].value == "#NAME?"

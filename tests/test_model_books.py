@@ -40,6 +40,7 @@ def test_annotate_reports_the_model_and_a_better_fitting_one(tmp_path):
     used = int(block["Units used, N"])
     shape, _, scale = stats.weibull_min.fit(lifetimes[:used], floc=0)
     assert block["Estimate of p = P(life > threshold)"] == pytest.approx(
+        # tolerance 1e-4: scipy's Weibull optimiser (its tolerance, common practice)
         stats.weibull_min.sf(1500.0, shape, scale=scale), rel=1e-4)
     warnings = warning_text(result.path)
     # common practice, no published source: 150 strongly skewed lognormal lifetimes are told apart by AIC
@@ -72,6 +73,7 @@ def test_demo_models_match_the_guess_mean_and_spread():
     for name, distribution in (("weibull", stats.weibull_min), ("lognormal", stats.lognorm)):
         shape, scale = models[name]
         matched = distribution(shape, scale=scale)
+        # tolerance 1e-10: the matching solves for the shape numerically, to about 1e-12
         assert matched.mean() == pytest.approx(reference.mean(), rel=1e-10)
         assert matched.std() == pytest.approx(reference.std(), rel=1e-10)
 

@@ -58,6 +58,7 @@ def test_the_fixture_holds_everything_that_is_compared(original):
     assert found["names"] == {"Threshold": f"'{OTHER_SHEET}'!$B$2"}
     assert found["sheet"][LOG_SHEET]["names"] == {"LogStart": f"'{LOG_SHEET}'!$C$2"}
     # the 17-digit number is really in the file (openpyxl alone would have written 0.3)
+    # property: the 17-digit number read back is the double written (openpyxl's own writing would round it)
     assert found["sheet"][LOG_SHEET]["cells"]["G6"][0] == float(SEVENTEEN_DIGITS) != 0.3
 
 
@@ -123,6 +124,7 @@ def test_recalc_loses_nothing_and_stores_the_values(original, tmp_path):
     # check value: hand computation in the test, the AVERAGE and the share formulas of the fixture
     log = openpyxl.load_workbook(original)[LOG_SHEET]
     lifetimes = [log.cell(row, 3).value for row in range(2, log.max_row + 1) if log.cell(row, 3).value is not None]
+    # tolerance 1e-12: the engine's order of operations; 1e-15 for the same k/n
     assert shown[LOG_SHEET]["G7"].value == pytest.approx(sum(lifetimes) / len(lifetimes), rel=1e-12)
     assert shown[OTHER_SHEET]["D3"].value == pytest.approx(200.0 / sum(100.0 * k for k in range(1, 9)), rel=1e-12)
     assert shown[OTHER_SHEET]["F5"].value == len(lifetimes)

@@ -29,6 +29,8 @@ def test_recalc_writes_a_new_book_with_the_values(tmp_path, capsys):
     out = tmp_path / "check-recalc.xlsx"
     values = openpyxl.load_workbook(out, data_only=True)["Check"]
     # check value: NIST/SEMATECH §1.3.6.7.4 — chi-square 1 df (gamma 0.5, 2) upper 0.05 point is 3.841
+    # tolerance 1e-12 against scipy's chi2.sf at the printed 3.841; 2e-4 against 0.05, the table's 3-decimal
+    # rounding moves p by at most about 1e-4
     assert values["B4"].value == pytest.approx(stats.chi2.sf(3.841, 1), rel=1e-12)
     assert values["B4"].value == pytest.approx(0.05, abs=2e-4)
     assert values["B6"].value == 0.5  # 800 and 2300 of 4 units are beyond 500; the blank is skipped

@@ -549,6 +549,7 @@ def test_save_writes_new_file_and_refuses_existing(tmp_path):
     target = tmp_path / "copy.xlsx"
     result = save_workbook_atomically(book, target)
     assert result.path == target and result.backup is None
+    # property: the value written (1.5, plain_book) is read back
     assert openpyxl.load_workbook(target).active["A2"].value == 1.5
     before = target.read_bytes()
     book.active["A2"] = 99
@@ -633,6 +634,7 @@ def test_killed_save_leaves_the_original_intact(tmp_path):
     assert partial.stat().st_size > 0, "the child was killed before it wrote anything"
     assert target.read_bytes() == original
     assert not (tmp_path / "log.backup.xlsx").exists()
+    # property: the value written (1.5, plain_book) is read back
     assert openpyxl.load_workbook(target).active["A2"].value == 1.5
 
 

@@ -52,6 +52,7 @@ def test_recalc_reads_the_libreoffice_spelling(tmp_path):
     source = libreoffice_book(tmp_path / "lo.xlsx")
     assert main(["recalc", str(source), "--out", str(tmp_path / "out.xlsx")]) == 0
     values = openpyxl.load_workbook(tmp_path / "out.xlsx", data_only=True)["Log"]
+    # check value: ERLANG (Erlang identity, above); tolerance 1e-12, the route through recalc's engine
     assert math.isclose(values["C1"].value, ERLANG, rel_tol=1e-12)
     assert values["C2"].value == values["C1"].value
     low, high = values["D1"].value, values["E1"].value
@@ -70,6 +71,7 @@ def test_recalc_for_a_program_writes_its_spelling(tmp_path, target, prefix):
     assert sheet["C1"].value == sheet["C2"].value == f"={prefix}TAIL_PROB(1000,2,400)"
     assert sheet["D1"].value.text == f"={prefix}TAIL_PROB_BOUNDS(A1:A4,300,2)"
     values = openpyxl.load_workbook(out, data_only=True)["Log"]
+    # check value: ERLANG (Erlang identity, above); tolerance 1e-12, the route through recalc's engine
     assert math.isclose(values["C1"].value, ERLANG, rel_tol=1e-12)
 
 

@@ -37,6 +37,7 @@ def same(shown, stored):
             return abs((shown - stored).total_seconds()) < 1e-3
         return shown == stored
     # LibreOffice keeps 15 significant digits when it saves
+    # tolerance 1e-14: LibreOffice keeps 15 significant digits when it saves
     return isinstance(shown, (int, float)) and math.isclose(shown, stored, rel_tol=1e-14, abs_tol=1e-300)
 
 
