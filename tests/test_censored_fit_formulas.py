@@ -46,6 +46,7 @@ def test_fit_shape_and_scale_are_the_censored_maximum_likelihood(model, seed, sh
     column = _cells(times, suspended)
     fitted_shape, fitted_scale = sheet.FIT_SHAPE(column, model), sheet.FIT_SCALE(column, model)
     (best_shape, best_scale), _ = _maximised(model, times, suspended, shape, scale)
+    # tolerance 1e-6: the Nelder-Mead simplex stops within about that of the argmax; 1e-4 for scipy's general fit
     assert fitted_shape == pytest.approx(best_shape, rel=1e-6)
     assert fitted_scale == pytest.approx(best_scale, rel=1e-6)
     data = stats.CensoredData.right_censored(times, suspended)
@@ -56,6 +57,7 @@ def test_fit_shape_and_scale_are_the_censored_maximum_likelihood(model, seed, sh
     # the fit the estimates use (same code), and it differs from the fit of the failures alone
     estimate = estimate_tail(times, scale, "fitted-shape", survivors=suspended, model=model)
     assert (estimate.shape, estimate.scale) == (fitted_shape, fitted_scale)
+    # property: leaving out the suspensions shrinks the scale by more than 2 % here (what the check must see)
     assert sheet.FIT_SCALE([[float(t)] for t in times[~suspended]], model) < 0.98 * fitted_scale
 
 
@@ -77,6 +79,8 @@ def test_compare_ranks_the_censored_likelihoods():
     starts = {"gamma": (1.0, 500.0), "weibull": (1.0, 500.0), "lognormal": (1.0, 300.0)}
     for model, shape, scale, log_likelihood, aic, pvalue in rows:
         (best_shape, best_scale), best = _maximised(model, times, suspended, *starts[model])
+        # check value: the maximised likelihood above; tolerance 1e-6 on the parameters (simplex), 1e-7 absolute on
+        # log L (flat at the maximum: second order in the parameter error), AIC written out (rel 1e-15, one rounding)
         assert shape == pytest.approx(best_shape, rel=1e-6) and scale == pytest.approx(best_scale, rel=1e-6)
         assert log_likelihood == pytest.approx(best, abs=1e-7)
         assert log_likelihood >= best - 1e-9                  # a maximum at least as high as the optimizer's
