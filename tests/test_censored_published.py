@@ -101,3 +101,23 @@ def test_dropping_the_units_taken_off_is_far_from_the_handbook():
     estimate = estimate_tail(np.array(FAILURES), 400.0, "fitted-shape", model="weibull")
     # property: ignoring the suspensions moves η by more than 40 % (the size the test above must be able to see)
     assert abs(estimate.scale / ETA - 1) > 0.4
+
+
+def _sheet_cells():
+    return [[t] for t in FAILURES] + [["500+"] for _ in TAKEN_OFF]
+
+
+def test_fit_formulas_give_the_handbooks_weibull_fit():
+    from tailstop.sheet import FIT_SCALE, FIT_SHAPE
+    assert FIT_SHAPE(_sheet_cells(), "weibull") == pytest.approx(BETA, abs=5e-5)   # printed to 4 decimals
+    assert FIT_SCALE(_sheet_cells(), "weibull") == pytest.approx(ETA, rel=1e-6)    # see the first test
+
+
+def test_fit_compare_gives_the_handbooks_log_likelihood_and_aics():
+    from tailstop.sheet import FIT_COMPARE
+    table = FIT_COMPARE(_sheet_cells())
+    header, rows = table[0], {row[0]: row for row in table[1:]}
+    log_likelihood, aic = header.index("log-likelihood"), header.index("AIC")
+    assert rows["weibull"][log_likelihood] == pytest.approx(WEIBULL_LOGLIK, abs=5e-4)  # printed to 3 decimals
+    assert rows["weibull"][aic] == pytest.approx(WEIBULL_AIC, abs=5e-3)                # printed to 2 decimals
+    assert rows["lognormal"][aic] == pytest.approx(LOGNORMAL_AIC, abs=5e-3)            # printed to 2 decimals
