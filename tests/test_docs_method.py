@@ -160,6 +160,8 @@ def test_getting_started_figures():
     # check value: the Erlang closed form Q(2, t) = e^{-t}(1 + t) at t = 2.5 (JKB vol. 1): 0.287297…
     assert round(math.exp(-2.5) * 3.5, 4) == 0.2873
     assert "`=UNITS_REQUIRED(1500, 2, 600, 1.5, 0.95)`" in text and "(115)" in text
+    # check value: by hand, pass-fail σ² = 1/(p(1-p)) = 4.8838 at that p; (1.959964 / ln 1.5)² · 4.8838
+    # = 23.366 · 4.8838 = 114.12 -> 115 units (METHOD.md §3-§4, z from NIST/SEMATECH §1.3.6.7.1)
     assert UNITS_REQUIRED(1500, 2, 600, 1.5, 0.95) == 115
 
 
