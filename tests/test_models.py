@@ -270,7 +270,9 @@ def test_sigma2_matches_a_seeded_simulation(model, shape, scale, threshold):
 
 
 def test_draws_follow_the_model():
-    # check value: scipy.stats.kstest against weibull_min / lognorm with the same parameters
+    # check value: scipy.stats.kstest against weibull_min / lognorm with the same parameters. Level 0.01:
+    # common practice; seed-dependent, at seed 5 the p-values are 0.043 and 0.31 (for right draws p is
+    # uniform, so 0.01 would fail for 1 seed in 100)
     rng = np.random.default_rng(5)
     assert stats.kstest(weibull.draw(rng, 1.7, 90.0, 4000), stats.weibull_min(1.7, scale=90.0).cdf).pvalue > 0.01
     assert stats.kstest(lognormal.draw(rng, 0.6, 70.0, 4000), stats.lognorm(0.6, scale=70.0).cdf).pvalue > 0.01
@@ -291,7 +293,8 @@ def test_fit_check_statistic_and_pvalue_match_scipy(model, distribution):
 
 
 def test_fit_check_tells_the_models_apart():
-    # common practice, no published source: 300 strongly skewed lognormal lifetimes fail the Weibull check
+    # common practice, no published source: 300 strongly skewed lognormal lifetimes fail the Weibull check;
+    # seed-dependent: at seed 9 the p-values are 0.005 (Weibull, the smallest of 199 samples) and 0.54
     rng = np.random.default_rng(9)
     x = lognormal.draw(rng, 1.2, 100.0, 300)
     assert weibull.fit_pvalue(x, samples=199) < 0.05
