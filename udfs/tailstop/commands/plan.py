@@ -187,8 +187,6 @@ def run(args, out=None, progress_stream=None):
     if beyond_any_test:
         print(f"tailstop plan: {beyond_any_test}", file=sys.stderr)
         return 1
-    if args.test_time is not None and (args.calibrate or args.png):
-        raise ValueError("--test-time cannot be combined with --calibrate or --png yet")
     left_out = args.test_time is not None and plan is not None and args.test_time < args.threshold
     if left_out:
         methods = tuple(m for m in methods if m not in EXACT_METHODS)
@@ -226,7 +224,7 @@ def run(args, out=None, progress_stream=None):
         print(_guarantee_line(args.accuracy, args.confidence, args.pilot), file=out)
     for method, text in refused.items():
         print(f"\n{method}: not computed — {text}.", file=out)
-    calibratable = [m for m in results if m != "pass-fail-exact" and args.test_time is None]
+    calibratable = [m for m in results if m != "pass-fail-exact"]
     short = [m for m in calibratable if falls_short(results[m])]
     to_calibrate = calibratable if args.calibrate else short
     for method in short:
@@ -237,7 +235,14 @@ def run(args, out=None, progress_stream=None):
               "restores it at this guess.", file=out)
     if to_calibrate:
         print(file=out)
-        print(_aligned(_calibration_table(plan, p, args, to_calibrate, counts, progress_stream)), file=out)
+        runs_used = {}
+        print(_aligned(_calibration_table(plan, p, args, to_calibrate, counts, progress_stream, runs_used)), file=out)
+        for method, used in runs_used.items():
+            which = (f"the {used:,} runs of the table above" if used == counts[method] else
+                     f"the first {used:,} of the table's {counts[method]:,} runs (as many as fit in "
+                     f"{operating.COMMAND_SECONDS:g} s)")
+            print(f"{method}: calibrated on {which}, every unit stopped at {args.test_time:g}; each run is kept "
+                  "whole, so every z' sees the same units.", file=out)
         print("To run a calibrated plan, give the decision formulas the confidence 2Φ(z') - 1 shown "
               "(docs/method.md). Calibration simulates on common random numbers (every run sees the same "
               "lifetimes at every z'), so its coverage at z can differ from the table above within Monte Carlo "
@@ -245,7 +250,7 @@ def run(args, out=None, progress_stream=None):
               file=out)
     if args.png and results:
         _plot(args.png, plan, p, results, counts, args.seed, progress_stream,
-              (args.accuracy, args.confidence, args.pilot), args.model)
+              (args.accuracy, args.confidence, args.pilot), args.model, args.test_time)
         print(f"\nPlot written to {args.png}", file=out)
     print(f"\nFigures assume independent units with {args.model} lifetimes at the guessed parameters "
           "(pass-fail: only the probability). Simulated figures: ± one Monte Carlo standard error; "
@@ -273,6 +278,20 @@ def _aligned(rows):
     return "\n".join(lines)
 
 
+def _test_time_evaluator(plan, args, method, counts, progress=None):
+    """``z' -> figures`` of a simulated method on the test stopped at --test-time, and the runs it made.
+
+    The runs are simulated once, within the command's time bound, each kept
+    as its whole path (``TimeTerminatedRuns``); every z' then costs a search.
+    """
+    from ..core import operating
+    from ..core.operating.time_terminated import TimeTerminatedRuns
+
+    runs = TimeTerminatedRuns(*plan, method, args.test_time, replications=counts[method], seed=args.seed,
+                        model=args.model, seconds=operating.COMMAND_SECONDS, progress=progress)
+    return runs.at, runs.replications
+
+
 def _evaluator(plan, p, args, method, counts):
     from ..core import operating
 
@@ -288,14 +307,24 @@ class _OutOfTime(Exception):
     pass
 
 
-def _calibration_table(plan, p, args, methods, counts, progress_stream):
+def _calibration_table(plan, p, args, methods, counts, progress_stream, runs_used=None):
+    """The calibration rows; ``runs_used`` collects how many runs each method simulated under a test time."""
     from ..core import operating
 
     rows = [["calibrated critical value", *methods]]
     found = {}
     for method in methods:
+        if args.test_time is not None and method not in EXACT_METHODS:
+            bar = ProgressBar(f"simulating {method} for calibration", progress_stream)
+            try:
+                evaluate, used = _test_time_evaluator(plan, args, method, counts, bar)
+            finally:
+                bar.close()
+            if runs_used is not None:
+                runs_used[method] = used
+        else:
+            evaluate = _evaluator(plan, p, args, method, counts)
         bar = ProgressBar(f"calibrating {method}", progress_stream)
-        evaluate = _evaluator(plan, p, args, method, counts)
         start = time.monotonic()
 
         def bounded(z, evaluate=evaluate, start=start):
@@ -359,20 +388,29 @@ def _scale_for(probability, threshold, shape, model="gamma"):
     return threshold / special.gammainccinv(shape, probability)
 
 
-def _curve_point(plan, rule_settings, p, method, counts, seed, bound, model):
-    """The plan's figures when the true probability is p (the model's shape held at the guess)."""
+def _curve_point(plan, rule_settings, p, method, counts, seed, bound, model, test_time=None):
+    """The plan's figures when the true probability is p (the model's shape held at the guess).
+
+    With a test time (at or beyond the threshold for the exact methods, which it then leaves unchanged) the
+    simulated methods run the censored test, as many runs as fit in the point's share of the time bound.
+    """
     from ..core import operating
+    from ..core.operating.time_terminated import TimeTerminatedRuns
 
     if method in EXACT_METHODS:
         return operating.pass_fail_exact(p, *rule_settings, work_bound=bound, method=method)
     threshold, shape, _, accuracy, confidence, pilot = plan
     truth = (threshold, shape, _scale_for(p, threshold, shape, model), accuracy, confidence, pilot)
     share = {"known-shape": 5, "fitted-shape": 4}
-    return operating.operating_characteristics(*truth, method, replications=max(200, counts[method] // share[method]),
-                                               seed=seed, work_bound=bound, model=model)
+    replications = max(200, counts[method] // share[method])
+    if test_time is not None:
+        return TimeTerminatedRuns(*truth, method, test_time, replications=replications, seed=seed, model=model,
+                            seconds=bound, least=50).at()
+    return operating.operating_characteristics(*truth, method, replications=replications, seed=seed,
+                                               work_bound=bound, model=model)
 
 
-def _coverage_curves(plan, p_guess, rule_settings, methods, counts, seed, progress, model="gamma"):
+def _coverage_curves(plan, p_guess, rule_settings, methods, counts, seed, progress, model="gamma", test_time=None):
     """Coverage against the true probability (odds of the guess × 1/3 .. 3), shape held at the guess.
 
     Each point is bounded to its share of the command's time bound; a point
@@ -399,7 +437,7 @@ def _coverage_curves(plan, p_guess, rule_settings, methods, counts, seed, progre
         values, errors = [], []
         for p in probabilities:
             try:
-                result = _curve_point(plan, rule_settings, p, method, counts, seed, bound, model)
+                result = _curve_point(plan, rule_settings, p, method, counts, seed, bound, model, test_time)
                 values.append(result.coverage)
                 errors.append(result.coverage_se)
             except operating.PlanTooLarge:
@@ -411,14 +449,14 @@ def _coverage_curves(plan, p_guess, rule_settings, methods, counts, seed, progre
     return curves
 
 
-def _plot(path, plan, p_guess, results, counts, seed, progress_stream, rule_settings, model="gamma"):
+def _plot(path, plan, p_guess, results, counts, seed, progress_stream, rule_settings, model="gamma", test_time=None):
     import numpy as np
     from matplotlib.figure import Figure
     from matplotlib.ticker import FuncFormatter
 
     bar = ProgressBar("plotting", progress_stream)
     try:
-        curves = _coverage_curves(plan, p_guess, rule_settings, tuple(results), counts, seed, bar, model)
+        curves = _coverage_curves(plan, p_guess, rule_settings, tuple(results), counts, seed, bar, model, test_time)
     finally:
         bar.close()
     figure = Figure(figsize=(12.5, 4.5), layout="constrained")
@@ -454,7 +492,8 @@ def _plot(path, plan, p_guess, results, counts, seed, progress_stream, rule_sett
     right.xaxis.set_minor_formatter(plain)
     right.set_xlabel("true probability beyond the threshold (dotted: the guess)")
     right.set_ylabel("coverage of the final interval")
-    right.set_title("Coverage against the true probability")
+    right.set_title("Coverage against the true probability"
+                    + (f"\n(every unit stopped at {test_time:g})" if test_time is not None else ""))
     # beside the axes, never over a curve
     right.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize="small", borderaxespad=0.0)
     figure.savefig(path, dpi=110)

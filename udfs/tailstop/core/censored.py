@@ -42,7 +42,7 @@ from .probability import TailProbability
 from .product_limit import prefix_counts, product_limit, regularized_sigma2
 
 __all__ = ["FAILURES_NEEDED", "CensoredEstimate", "censored_units", "is_censored", "failures_message",
-           "censored_estimate", "censored_fit", "compare_censored_models", "FIT_CHECK_NEEDS_FAILURES", "CensoredRule", "censoring_notes"]
+           "censored_estimate", "censored_fit", "censored_paths", "compare_censored_models", "FIT_CHECK_NEEDS_FAILURES", "CensoredRule", "censoring_notes"]
 
 # The fewest failures each method needs before it can estimate anything.
 FAILURES_NEEDED = {"pass-fail": 1, "known-shape": 1, "fitted-shape": 2}
@@ -333,6 +333,54 @@ def compare_censored_models(times, suspended) -> tuple:
 
 # Estimates with a closed form from running sums: (times, suspended, prefixes, shape, threshold) -> (log scale, σ̂²)
 _CLOSED_FORMS = {("weibull", "known-shape"): _log_location.weibull_known_shape_prefixes}
+
+
+def censored_paths(times, suspended, threshold, method, shape=None, model="gamma"):
+    """(σ̂²_n, log q̂_n) of the first n units for every n = 1 … N, from the censored fit of each prefix.
+
+    The fits and σ̂² of ``CensoredRule`` (known-shape, fitted-shape), for
+    every prefix at once; NaN where a prefix has no estimate (too few
+    failures, no maximum). For simulations that need the whole path of a
+    run, e.g. to find where the rule would stop for many critical values.
+    """
+    x = np.asarray(times, dtype=float).ravel()
+    flags = np.asarray(suspended, dtype=bool).ravel()
+    lifetime = get_model(model)
+    _check_model(lifetime.name)
+    if method not in ("known-shape", "fitted-shape"):
+        raise ValueError(f"the paths are those of known-shape and fitted-shape (got {method!r})")
+    prefixes = np.arange(1, x.size + 1)
+    known = float(shape) if method == "known-shape" else None
+    if (lifetime.name, method) in _CLOSED_FORMS:
+        log_scale, sigma2 = _CLOSED_FORMS[lifetime.name, method](x, flags, prefixes, known, threshold)
+        shapes = np.full(x.size, known)
+    elif lifetime.name in _log_location.FAMILIES:
+        family = _log_location.FAMILIES[lifetime.name]
+        fits = prefix_fits(lifetime.name, x, flags, threshold, method, known)
+        log_scale, sigma2 = fits.location, fits.sigma2
+        shapes = np.full(x.size, known) if known is not None else family.shape_from_width(np.exp(fits.log_width))
+    else:
+        width = max(1, np.unique(x[flags]).size)
+        rows = max(1, _RULE_CELLS // width)
+        parts = [_model_fit(_prefix_data(x, flags, prefixes[start:start + rows], lifetime.name), threshold, method,
+                            known, lifetime.name) for start in range(0, x.size, rows)]
+        shapes, log_scale, sigma2 = (np.concatenate([part[i] for part in parts]) for i in range(3))
+    fitted = np.isfinite(shapes) & np.isfinite(log_scale)
+    with np.errstate(all="ignore"):
+        safe_shape = np.where(fitted, shapes, 1.0)
+        t = threshold / np.exp(np.where(fitted, log_scale, 0.0))
+        tail = lifetime.tail_standard(safe_shape, t)
+        log_odds = np.asarray(tail.log_p) - np.asarray(tail.log_cdf)
+        # before the first suspension the rule takes the complete-data σ̂² (``CensoredRule``)
+        complete = (lifetime.sigma2_known_shape if known is not None else lifetime.sigma2_fitted_shape)(safe_shape, t)
+    sigma2 = np.where(prefixes < _first_suspension(flags), complete, sigma2)
+    ok = fitted & np.isfinite(sigma2)
+    return np.where(ok, sigma2, np.nan), np.where(ok, log_odds, np.nan)
+
+
+def _first_suspension(flags):
+    """The number of units up to and including the first suspended one (N + 1 without any)."""
+    return int(np.argmax(flags)) + 1 if flags.any() else flags.size + 1
 
 
 def _stop_condition(n, factor, sigma2):
