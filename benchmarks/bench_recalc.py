@@ -3,7 +3,7 @@
     python benchmarks/bench_recalc.py [--cell-by-cell ROWS]
 
 An invented live log of n rows (lifetimes in B; ``STOP_DECISION`` (guarded
-by ``IF(ISBLANK(B<row>),"",…)`` as ``tailstop annotate --live`` writes it),
+by ``IF(IFERROR(LEN(TRIM(B<row>)),1)=0,"",…)`` as ``tailstop annotate --live`` writes it),
 ``TAIL_PROB_EST`` and ``UNITS_NEEDED_NOW`` filled down C:E over the growing
 ranges ``$B$2:B<row>``, settings in a small block) is recalculated by the
 command ``python -m tailstop.commands recalc`` at 1,000, 3,000 and 10,000
@@ -56,7 +56,8 @@ def live_log(path, rows, seed=20261202):
         sheet.cell(row, 1, index + 1)
         sheet.cell(row, 2, float(value))
         # the decision as `tailstop annotate --live` writes it: guarded, so a blank row shows blank anywhere
-        sheet.cell(row, 3, f'=IF(ISBLANK(B{row}),"",STOP_DECISION($B$2:B{row},$H$2,$H$3,$H$4,$H$5,$H$6,$H$7,$H$8))')
+        sheet.cell(row, 3, f'=IF(IFERROR(LEN(TRIM(B{row})),1)=0,"",STOP_DECISION($B$2:B{row},$H$2,$H$3,$H$4,$H$5,$H$6,'
+                           '$H$7,$H$8))')
         sheet.cell(row, 4, f"=TAIL_PROB_EST($B$2:B{row},$H$2,$H$6,$H$7)")
         sheet.cell(row, 5, f"=UNITS_NEEDED_NOW($B$2:B{row},$H$2,$H$3,$H$4,$H$6,$H$7)")
     book.save(path)

@@ -217,7 +217,7 @@ def test_live_decisions_on_blank_rows_are_guarded_and_recalculate_in_one_pass(tm
     result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "live.xlsx", live=True)
     sheet = openpyxl.load_workbook(result.path)[SHEET]
     guarded = sheet["E9"].value  # row 9 is blank
-    assert guarded.startswith('=IF(ISBLANK(C9),"",STOP_DECISION($C$4:C9,')
+    assert guarded.startswith('=IF(IFERROR(LEN(TRIM(C9)),1)=0,"",STOP_DECISION($C$4:C9,')
     columns, values = taken_out(result.path, monkeypatch)
     # the guarded decisions are still computed as one column, and the same as the engine computes each cell
     assert [(column.name, len(column.cells)) for column in columns] == [("STOP_DECISION", result.log.rows)]
@@ -225,6 +225,34 @@ def test_live_decisions_on_blank_rows_are_guarded_and_recalculate_in_one_pass(tm
     cached = openpyxl.load_workbook(result.path, data_only=True)[SHEET]
     for row in range(FIRST_ROW, result.log.last_row + 1):
         assert (values[(SHEET.upper(), f"E{row}")] or None) == (cached[f"E{row}"].value or None), row
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_a_lifetime_cell_of_spaces_is_blank_everywhere(tmp_path, soffice, streaming, live):
+    # someone typed spaces into a blank row: no unit, in the add-in's formulas, the guard of the live decision,
+    # the block's counts, a recalculation, and LibreOffice without the add-in
+    from tailstop.workbooks.recalc import recalc
+
+    hours = bearing_hours()
+    path = bearing_log(tmp_path / "bearing.xlsx", hours, average=False)
+    book = openpyxl.load_workbook(path)
+    book[SHEET]["C9"] = "   "  # row 9 is one of the log's blank rows
+    book.save(path)
+    result = annotate(path, column="C", plan=the_plan(), out=tmp_path / "out.xlsx", live=live)
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
+    computed = recalc(result.path, tmp_path / "recalc.xlsx")
+    assert computed.errors == []
+    for book_path, folder in ((result.path, "lo-written"), (computed.path, "lo-recalc")):
+        for shown in (openpyxl.load_workbook(book_path, data_only=True),
+                      openpyxl.load_workbook(convert_with_libreoffice(book_path, tmp_path / folder), data_only=True)):
+            assert shown_errors(shown) == []
+            sheet = shown[SHEET]
+            assert sheet["E9"].value in (None, "")
+            assert [sheet.cell(row, 5).value for row in log_rows(hours)[:PILOT]] == ["PILOT"] * (PILOT - 1) + [
+                "CONTINUE" if stop > PILOT else "STOP"]
+            block = {sheet.cell(row, 9).value: sheet.cell(row, 10).value for row in range(1, 30)}
+            assert block["Units used, N"] == stop
+            assert block["  of which suspended (marked +)"] == 0
 
 
 @pytest.mark.parametrize("formula_text, taken_out_of_the_engine", [
@@ -449,7 +477,7 @@ def test_a_unit_typed_below_a_live_log_is_decided_and_counted(tmp_path, streamin
     assert code == 0 and "live: the decision formulas and the block's ranges reach row 165" in out
     annotated = tmp_path / "bearing-tailstop.xlsx"
     sheet = openpyxl.load_workbook(annotated)[SHEET]
-    assert sheet["E100"].value.startswith('=IF(ISBLANK(C100),"",STOP_DECISION($C$4:C100,')
+    assert sheet["E100"].value.startswith('=IF(IFERROR(LEN(TRIM(C100)),1)=0,"",STOP_DECISION($C$4:C100,')
     book = openpyxl.load_workbook(annotated)
     book[SHEET]["C66"] = hours[60]  # the next result, typed in the row below the log
     book.save(tmp_path / "typed.xlsx")

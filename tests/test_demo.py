@@ -149,8 +149,8 @@ def test_the_decision_column_is_the_decision_formula_row_by_row(built):
     column = [[float(v)] for v in scenario.bench_log()]
     arguments = (scenario.THRESHOLD, scenario.ACCURACY, scenario.CONFIDENCE, scenario.PILOT, "pass-fail")
     for row in range(2, len(column) + 2):
-        assert sheet.cell(row, 3).value == (f'=IF(ISBLANK(B{row}),"",STOP_DECISION($B$2:B{row},$M$3,$M$6,$M$7,$M$8,'
-                                             f'$M$4,$M$5,$M$9,$M$10))')
+        assert sheet.cell(row, 3).value == (f'=IF(IFERROR(LEN(TRIM(B{row})),1)=0,"",STOP_DECISION($B$2:B{row},'
+                                             f'$M$3,$M$6,$M$7,$M$8,$M$4,$M$5,$M$9,$M$10))')
         assert values.cell(row, 3).value == STOP_DECISION(column[: row - 1], *arguments), row
     for row in (scenario.PILOT + 1, 130, len(column) + 1):
         needed = UNITS_NEEDED_NOW(column[: row - 1], scenario.THRESHOLD, scenario.ACCURACY, scenario.CONFIDENCE)

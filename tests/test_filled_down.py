@@ -280,17 +280,20 @@ def test_split_arguments_respects_quotes_and_parentheses():
                                                                             "TRUE"]
 
 
+@pytest.mark.parametrize("guard", ["IFERROR(LEN(TRIM(B{row})),1)=0", "ISBLANK(B{row})"], ids=["trim", "isblank"])
 @pytest.mark.parametrize("call", ["STOP_DECISION($B$2:B{row},$I$2,$I$3,$I$4,$I$5)", "TAIL_PROB_EST($B$2:B{row},$I$2)",
                                   "UNITS_NEEDED_NOW($B$2:B{row},$I$2,$I$3,$I$4)"])
-def test_a_column_guarded_against_blank_rows_gives_the_engines_values(tmp_path, monkeypatch, call):
-    # as annotate --live writes a decision: =IF(ISBLANK(B9),"",STOP_DECISION($B$2:B9,…)); blank rows below a bad
-    # cell show "" through the guard, where the call alone would show the bad cell's message
+def test_a_column_guarded_against_blank_rows_gives_the_engines_values(tmp_path, monkeypatch, call, guard):
+    # as annotate --live writes a decision: =IF(IFERROR(LEN(TRIM(B9)),1)=0,"",STOP_DECISION($B$2:B9,…)), and as
+    # it wrote one before, =IF(ISBLANK(B9),"",…); blank rows (spaces and tabs too) below a bad cell show "" through
+    # the guard where the call alone would show the bad cell's message; the bad cell itself shows the message
     path = live_log(tmp_path / "log.xlsx", rows=40, readers=False)
     book = openpyxl.load_workbook(path)
     sheet = book["Bench log"]
     sheet["B20"], sheet["B21"], sheet["B22"], sheet["B23"] = "n/a", None, "", '=""'
+    sheet["B24"], sheet["B25"] = "   ", "\t"
     for row in range(2, 42):
-        sheet.cell(row, 3, f'=IF(ISBLANK(B{row}),"",{call.format(row=row)})')
+        sheet.cell(row, 3, f'=IF({guard.format(row=row)},"",{call.format(row=row)})')
     book.save(path)
     columns, values = taken_out(path, monkeypatch)
     assert any(column.guarded for column in columns)

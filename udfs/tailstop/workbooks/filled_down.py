@@ -44,10 +44,16 @@ MIN_CELLS = 2
 _CALL = re.compile(r"^=\s*(?P<name>[A-Za-z_][A-Za-z0-9_.]*)\((?P<arguments>.*)\)\s*$", re.S)
 _RANGE = re.compile(r"^\$?(?P<c1>[A-Za-z]{1,3})\$?(?P<r1>[0-9]+):\$?(?P<c2>[A-Za-z]{1,3})\$?(?P<r2>[0-9]+)$")
 _CELL = re.compile(r"^\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)$")
-# =IF(ISBLANK(B9),"",STOP_DECISION($B$2:B9,…)): a decision that shows an empty cell on a blank row anyway,
-# guarded so that a spreadsheet without the add-in shows it too; computed as the call inside
-_BLANK_GUARD = re.compile(r'^=\s*IF\(\s*ISBLANK\(\s*\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)\s*\)\s*,\s*""\s*,'
-                          r"\s*(?P<call>.*)\)\s*$", re.S)
+# a decision that shows an empty cell on a blank row anyway, guarded so that a spreadsheet without the add-in
+# shows it too; computed as the call inside. "trim": =IF(IFERROR(LEN(TRIM(B9)),1)=0,"",STOP_DECISION($B$2:B9,…)),
+# as annotate --live writes a decision; "isblank": =IF(ISBLANK(B9),"",…), as it wrote one before
+_GUARD_CELL = r"\s*\$?(?P<column>[A-Za-z]{1,3})\$?(?P<row>[0-9]+)\s*"
+_GUARD_CALL = r'\s*,\s*""\s*,\s*(?P<call>.*)\)\s*$'
+_BLANK_GUARDS = {
+    "trim": re.compile(r"^=\s*IF\(\s*IFERROR\(\s*LEN\(\s*TRIM\(" + _GUARD_CELL + r"\)\s*\)\s*,\s*1\s*\)\s*=\s*0"
+                       + _GUARD_CALL, re.S),
+    "isblank": re.compile(r"^=\s*IF\(\s*ISBLANK\(" + _GUARD_CELL + r"\)" + _GUARD_CALL, re.S),
+}
 # placeholder the engine holds for a taken-out cell until its value is known
 _PLACEHOLDER = ""
 
@@ -79,8 +85,8 @@ class FilledColumn:
     arguments: tuple
     cells: list = field(default_factory=list)
     constants: dict = field(default_factory=dict)
-    # cells written =IF(ISBLANK(<last cell of the range>),"",<the call>): blank where that cell is
-    guarded: set = field(default_factory=set)
+    # cells written =IF(<blank guard of the last cell of the range>,"",<the call>): coordinate -> kind of guard
+    guarded: dict = field(default_factory=dict)
     # False when no formula of the book can read the column's cells
     read: bool = True
 
@@ -135,7 +141,8 @@ def _recognise(cell, prefixes, eligible, constants):
     """(name, column, first row, last row, arguments) of a filled-down call, or None."""
     if cell.data_type != "f" or isinstance(cell.value, ArrayFormula) or not isinstance(cell.value, str):
         return None
-    guard = _BLANK_GUARD.match(cell.value)
+    kind, guard = next(((kind, found) for kind, pattern in _BLANK_GUARDS.items()
+                        if (found := pattern.match(cell.value)) is not None), (None, None))
     call = _CALL.match("=" + guard["call"] if guard else cell.value)
     if call is None:
         return None
@@ -156,7 +163,7 @@ def _recognise(cell, prefixes, eligible, constants):
     for text in rest:
         if not text or not (_CELL.match(text) or _constant(text, constants) is not None):
             return None
-    return name, span["c1"].upper(), int(span["r1"]), int(span["r2"]), rest, guard is not None
+    return name, span["c1"].upper(), int(span["r1"]), int(span["r2"]), rest, kind
 
 
 def take_out(book, prefixes, eligible):
@@ -188,7 +195,7 @@ def take_out(book, prefixes, eligible):
                 found[key] = FilledColumn(sheet.title, name, column, first_row, arguments)
             found[key].cells.append((cell.coordinate, last_row))
             if guarded:
-                found[key].guarded.add(cell.coordinate)
+                found[key].guarded[cell.coordinate] = guarded
     columns = [column for column in found.values() if len(column.cells) >= MIN_CELLS]
     columns = _independent(columns)
     for column in columns:
@@ -236,8 +243,16 @@ def _engine_value(solution, node):
     return np.asarray(ranges.value, dtype=object).item(0)
 
 
-def _is_blank_to_the_engine(solution, node):
-    return _engine_value(solution, node) is schedula.EMPTY
+def _guard_holds(kind, value):
+    """The guard's test on the last cell of the range, as the engine holds that cell.
+
+    ISBLANK is true only for a cell the engine holds nothing for ("" is text); LEN(TRIM(…))=0 also for empty
+    text and text of white space (the engine's TRIM is ``str.strip``; a spreadsheet's takes out spaces only);
+    an error is not blank to either.
+    """
+    if value is schedula.EMPTY:
+        return True
+    return kind == "trim" and isinstance(value, str) and not value.strip()
 
 
 def _inputs(column, solution, book_context, spec, to_cells):
@@ -293,8 +308,9 @@ def put_back(model, solution, columns, book_context, functions, to_cells, to_eng
         values = filled_down(column.name, rows, [end - first + 1 for _, end in column.cells], arguments)
         prefix = _node_prefix(book_context, column.sheet)
         for (coordinate, end), value in zip(column.cells, values):
-            if coordinate in column.guarded and _is_blank_to_the_engine(solution, f"{prefix}{column.column}{end}"):
-                value = ""  # ISBLANK is true only for a cell the engine holds nothing for ("" is text)
+            guard = column.guarded.get(coordinate)
+            if guard and _guard_holds(guard, _engine_value(solution, f"{prefix}{column.column}{end}")):
+                value = ""
             given[prefix + coordinate] = replace_empty(to_engine(value))
     if not any(column.read for column in columns):
         return solution, given

@@ -60,6 +60,7 @@ __all__ = [
     "highlight_stop",
     "decision_rule",
     "decision_formula",
+    "blank_guard",
     "decision_cell",
     "decision_content",
     "write_estimate_block",
@@ -604,7 +605,9 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
         # the log down to its last filled row (the last number's or text's position): the decision after it
         "last_decision": f"=STOP_DECISION(INDEX({whole},1):INDEX({whole},{last_filled}),{rule})",
         "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),{last_filled})',
-        "units_used": f"=COUNTA({used})",
+        # the cells that are not blank to the formulas (a cell of spaces is no unit), as in the spreadsheet's
+        # own functions; SUMPRODUCT takes the array without array entry, in Excel and LibreOffice alike
+        "units_used": f"=SUMPRODUCT((LEN(TRIM({used}))>0)*1)",
         # a failure is a number, a suspended unit the text 1200+
         "failures": f"=COUNT({used})",
         "suspended": f"={a('units_used')}-{a('failures')}",
@@ -637,7 +640,7 @@ def _output_values(analysis: LogAnalysis, live: bool):
         values.update(dict.fromkeys(_BOUNDS, NOT_REACHED))
     values["last_decision"] = analysis.last_decision
     values["rows_used"] = analysis.rows_used
-    values["units_used"] = analysis.filled_used if live else analysis.units_used
+    values["units_used"] = analysis.units_used
     values["failures"] = analysis.units_used - analysis.suspended_used
     values["suspended"] = values["units_used"] - values["failures"]
     return values
@@ -767,14 +770,24 @@ def decision_rule(layout: BlockLayout) -> str:
             f"{a('check_every')},{a('model')}")
 
 
-def decision_formula(log: LogRange, row: int, rule: str) -> str:
-    """``=IF(ISBLANK(B<row>),"",STOP_DECISION($B$2:B<row>, <rule>))``: the live decision of one row.
-
-    STOP_DECISION shows an empty cell on a blank row anyway; the guard says so with the spreadsheet's own
-    functions, so that a program without the add-in, which recalculates a formula whose stored value is
-    empty text (LibreOffice does), shows the empty cell instead of an unknown-function error.
+def blank_guard(cell: str) -> str:
+    """``IFERROR(LEN(TRIM(B9)),1)=0``: true, in the spreadsheet's own functions, for a cell the formulas read as
+    blank — empty, empty text, or only spaces. TRIM and LEN mean the same in Excel and LibreOffice (TRIM takes
+    out the spaces; from memory, their function references); a cell holding an error is not blank (IFERROR),
+    so the formula it guards still names the error.
     """
-    return f'=IF(ISBLANK({log.letter}{row}),"",STOP_DECISION({log.growing_reference(row)},{rule}))'
+    return f"IFERROR(LEN(TRIM({cell})),1)=0"
+
+
+def decision_formula(log: LogRange, row: int, rule: str) -> str:
+    """``=IF(IFERROR(LEN(TRIM(B<row>)),1)=0,"",STOP_DECISION($B$2:B<row>, <rule>))``: the live decision of a row.
+
+    STOP_DECISION shows an empty cell on a blank row anyway (a cell of spaces is blank to it too); the guard
+    (``blank_guard``) says so with the spreadsheet's own functions, so that a program without the add-in,
+    which recalculates a formula whose stored value is empty text (LibreOffice does), shows the empty cell
+    instead of an unknown-function error.
+    """
+    return f'=IF({blank_guard(f"{log.letter}{row}")},"",STOP_DECISION({log.growing_reference(row)},{rule}))'
 
 
 
