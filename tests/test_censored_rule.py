@@ -76,6 +76,15 @@ def test_units_needed_now_is_the_factor_times_the_censored_sigma2(method, shape)
     assert needed.needed == pytest.approx(boundary_factor(1.5, 0.95) * sigma2, rel=1e-12)
     plan = two_stage_plan(times[:40], THRESHOLD, 1.5, 0.95, method, shape, survivors=suspended[:40])
     assert plan.sigma2 == pytest.approx(_rule_sigma2(times[:40], suspended[:40], method, shape), rel=1e-12)
+    if method == "pass-fail":
+        # check value: Kaplan-Meier and Greenwood term by term over the distinct failure times (written here),
+        # σ̂² = n G / (1 - Ŝ)² (core/product_limit.py notes); tolerance 1e-12 for sums in another order
+        survival, greenwood = 1.0, 0.0
+        for t in np.unique(times[~suspended & (times <= THRESHOLD)]):
+            at_risk, failed = np.sum(times >= t), np.sum((times == t) & ~suspended)
+            survival *= 1 - failed / at_risk
+            greenwood += failed / (at_risk * (at_risk - failed))
+        assert needed.sigma2 == pytest.approx(times.size * greenwood / (1 - survival) ** 2, rel=1e-12)
 
 
 def test_more_suspension_means_more_units_needed():
