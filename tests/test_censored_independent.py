@@ -149,3 +149,25 @@ def test_the_heavy_censoring_warning_starts_above_thirty_percent():
 
     assert "suspended-units" in codes(3) and "many-suspended" not in codes(3)
     assert "many-suspended" in codes(4)
+
+
+@pytest.mark.parametrize("model, method, shape, failures", [
+    ("weibull", "fitted-shape", None, 2), ("lognormal", "fitted-shape", None, 2), ("lognormal", "known-shape", 0.7, 1)])
+def test_prefixes_with_just_the_failures_needed_are_estimated_far_into_the_log(model, method, shape, failures):
+    # property: a prefix with exactly the failures its method needs (2 with the shape fitted, 1 with it
+    # known) has an estimate, also past the prefixes fitted one by one at the start: here the first units
+    # fail and the next 150 are all suspended. Check value: the fit of each prefix on its own
+    # (estimate_tail, whose fits are checked against scipy.optimize in tests/test_censored_fits.py);
+    # tolerance 1e-10, the agreement the prefix fits promise (censored_prefixes.py notes)
+    from tailstop.core.methods import estimate_tail
+    from tailstop.core.models.censored_prefixes import prefix_fits
+
+    rng = np.random.default_rng(3)
+    times = np.concatenate([[120.0, 260.0][:failures], rng.uniform(50.0, 400.0, 150)])
+    flags = np.arange(times.size) >= failures
+    fits = prefix_fits(model, times, flags, 300.0, method, shape)
+    for n in (40, 60, 120, times.size):
+        alone = estimate_tail(times[:n], 300.0, method, shape, survivors=flags[:n], model=model)
+        # check value: the prefix fitted on its own; tolerance 1e-10 (see above)
+        assert fits.location[n - 1] == pytest.approx(np.log(alone.scale), rel=1e-10)
+        assert fits.sigma2[n - 1] == pytest.approx(alone.sigma2, rel=1e-10)
