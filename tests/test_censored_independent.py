@@ -3,6 +3,8 @@ references written here: scipy.stats log-densities and log-survival functions di
 numerically, and the product-limit estimate done term by term."""
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 from scipy import stats
@@ -171,3 +173,30 @@ def test_prefixes_with_just_the_failures_needed_are_estimated_far_into_the_log(m
         # check value: the prefix fitted on its own; tolerance 1e-10 (see above)
         assert fits.location[n - 1] == pytest.approx(np.log(alone.scale), rel=1e-10)
         assert fits.sigma2[n - 1] == pytest.approx(alone.sigma2, rel=1e-10)
+
+
+@pytest.mark.parametrize("z", [-2.0, -0.3, 0.0, 0.8, 2.5])
+def test_unit_term_derivatives_of_the_prefix_series_match_mpmath(z):
+    # check value: mpmath.diff at 50 digits of the unit terms T(z): log g = z - e^z and log Ḡ = -e^z for the
+    # smallest extreme value law (Weibull), -z²/2 and log Φ(-z) for the normal (lognormal), orders 0 … 12
+    # (censored_prefixes.py's series). Each order is weighed as the series uses it, T^(k) Δ^k / k! at the
+    # largest step Δ = _REACH it is used for; tolerance 1e-12 of max(1, |T|) on each weighed term (the
+    # normal's high orders come from hazard polynomials that lose digits at large z, 3e-7 relative at
+    # order 12 and z = 2.5, which the weight 0.25^12/12! makes harmless).
+    import mpmath
+
+    from tailstop.core.models import censored_prefixes as prefixes
+
+    terms = {
+        "extreme value failure": (prefixes._extreme_value_failure, lambda x: x - mpmath.exp(x)),
+        "extreme value suspension": (prefixes._extreme_value_suspension, lambda x: -mpmath.exp(x)),
+        "normal failure": (prefixes._normal_failure, lambda x: -x * x / 2),
+        "normal suspension": (prefixes._normal_suspension, lambda x: mpmath.log(mpmath.ncdf(-x))),
+    }
+    with mpmath.workdps(50):
+        for name, (ours, reference) in terms.items():
+            got = ours(np.array([z]))[:, 0]
+            expected = np.array([float(mpmath.diff(reference, mpmath.mpf(z), k)) for k in range(got.size)])
+            weight = np.array([prefixes._REACH ** k / math.factorial(k) for k in range(got.size)])
+            # check value: mpmath.diff (above); tolerance 1e-12 of max(1, |T|) per weighed term (see above)
+            assert np.max(np.abs(got - expected) * weight) <= 1e-12 * max(1.0, abs(expected[0])), name
