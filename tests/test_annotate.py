@@ -146,7 +146,12 @@ def test_decision_column_and_block_follow_the_rule_and_the_interval(log_path):
     assert decisions == expected
     block = {sheet.cell(row, 10).value: sheet.cell(row, 11).value for row in range(1, 40)}
     assert block["Units used, N"] == stop
-    assert block["Log rows used, counted from row 2 (down to the STOP)"] == stop
+    # the rows used are given as the sheet row they reach, the STOP's, shown "2 to <row>" by the number format
+    stop_row = 2 + decisions.index("STOP")
+    assert block["Sheet rows used (down to the STOP, or all)"] == stop_row == stop + 1
+    label_row = next(row for row in range(1, 40)
+                     if sheet.cell(row, 10).value == "Sheet rows used (down to the STOP, or all)")
+    assert sheet.cell(label_row, 11).number_format == '"2 to "0'
     # check value: the pass-fail estimate is the share of units beyond the threshold (counted here)
     share = sum(v > THRESHOLD for v in lifetimes[:stop]) / stop
     # tolerance 1e-15: the same k/n in doubles; 1e-14 on the bounds, a few roundings of q

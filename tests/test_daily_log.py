@@ -511,8 +511,8 @@ def test_bounds_say_the_accuracy_is_not_reached_before_the_stop(tmp_path, stream
     block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
     for label in ("p, lower bound", "p, upper bound", "Odds, lower bound (odds/d)", "Odds, upper bound (odds*d)"):
         assert block[label] == "accuracy not reached (no STOP yet): no guaranteed bound"
-    # the rows used are counted from the log's first sheet row, N and the units needed on the same units
-    assert block["Log rows used, counted from row 4 (down to the STOP)"] == 42  # 40 units and two blank rows
+    # the rows used reach the sheet row of the last unit (no STOP); N and the units needed on the same units
+    assert block["Sheet rows used (down to the STOP, or all)"] == log_rows(hours)[-1] == 45  # 40 units, 2 blanks
     assert block["Units used, N"] == 40
     from tailstop.sheet import UNITS_NEEDED_NOW
 

@@ -234,7 +234,8 @@ def _charts(charts, log_sheet, log, analysis, plan, layout, cached):
     most_needed = max(v for v in values["J"] if isinstance(v, int))
     rows = [
         ("Unit at the STOP (N)", f"={units_cell}", analysis.filled_used, "0"),
-        ("Log-odds at the STOP", f"=INDEX({on_log}!$G${log.first_row}:$G${last},{rows_cell})", log_odds_at_stop,
+        # the block's rows used cell holds the sheet row of the STOP: an index into the column from row 1
+        ("Log-odds at the STOP", f"=INDEX({on_log}!$G$1:$G${last},{rows_cell})", log_odds_at_stop,
          "0.000"),
         ("Lowest lower bound shown", f"=MIN({columns['H']})", lowest, "0.000"),
         ("Highest upper bound shown", f"=MAX({columns['I']})", highest, "0.000"),

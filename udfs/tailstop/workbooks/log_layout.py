@@ -523,7 +523,8 @@ _INPUTS = (
 _OUTPUTS = (
     # key, label, number format
     ("last_decision", "Decision after the last row", None),
-    ("rows_used", "Log rows used, counted from row {first} (down to the STOP)", "0"),
+    # the sheet row the rows used reach, shown "4 to 57": the rows used are the sheet's rows from the log's first
+    ("rows_used", "Sheet rows used (down to the STOP, or all)", '"{first} to "0'),
     ("units_used", "Units used, N", "0"),
     ("failures", "  of which failed", "0"),
     ("suspended", "  of which suspended (marked +)", "0"),
@@ -597,14 +598,15 @@ def _block_formulas(layout: BlockLayout, log: LogRange, decision_column: int):
     decisions = f"${get_column_letter(decision_column)}${log.first_row}:" \
                 f"${get_column_letter(decision_column)}${log.last_row}"
     whole = log.reference()
-    used = f"INDEX({whole},1):INDEX({whole},{a('rows_used')})"
+    above = log.first_row - 1  # sheet rows above the log: the rows used cell holds a sheet row
+    used = f"INDEX({whole},1):INDEX({whole},{a('rows_used')}-{above})"
     method_args = f"{a('method')},{a('shape')},{a('model')}"
     rule = decision_rule(layout)
     last_filled = f'MAX(IFERROR(MATCH(9.99E+307,{whole}),0),IFERROR(MATCH(REPT("z",255),{whole}),0))'
     return _guarded_bounds({
         # the log down to its last filled row (the last number's or text's position): the decision after it
         "last_decision": f"=STOP_DECISION(INDEX({whole},1):INDEX({whole},{last_filled}),{rule})",
-        "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),{last_filled})',
+        "rows_used": f'=IFERROR(MATCH("STOP",{decisions},0),{last_filled})+{above}',
         # the cells that are not blank to the formulas (a cell of spaces is no unit), as in the spreadsheet's
         # own functions; SUMPRODUCT takes the array without array entry, in Excel and LibreOffice alike
         "units_used": f"=SUMPRODUCT((LEN(TRIM({used}))>0)*1)",
@@ -634,12 +636,12 @@ def _guarded_bounds(formulas, decisions):
     return formulas
 
 
-def _output_values(analysis: LogAnalysis, live: bool):
+def _output_values(analysis: LogAnalysis, log: LogRange):
     values = dict(analysis.figures)
     if not analysis.stopped:
         values.update(dict.fromkeys(_BOUNDS, NOT_REACHED))
     values["last_decision"] = analysis.last_decision
-    values["rows_used"] = analysis.rows_used
+    values["rows_used"] = log.first_row - 1 + analysis.rows_used  # the last sheet row used
     values["units_used"] = analysis.units_used
     values["failures"] = analysis.units_used - analysis.suspended_used
     values["suspended"] = values["units_used"] - values["failures"]
@@ -666,12 +668,12 @@ def write_estimate_block(sheet, layout: BlockLayout, log: LogRange, decision_col
         cell.value = getattr(plan, attribute)
         cell.fill = INPUT_FILL
     formulas = _block_formulas(layout, log, decision_column)
-    values = _output_values(analysis, live)
+    values = _output_values(analysis, log)
     for key, label, number_format in _OUTPUTS:
-        _label(sheet, layout.cells[key], label.format(first=log.first_row))
+        _label(sheet, layout.cells[key], label)
         _put(sheet, layout.cells[key], formulas[key] if live else None, values[key], cached)
         if number_format:
-            sheet[layout.cells[key]].number_format = number_format
+            sheet[layout.cells[key]].number_format = number_format.format(first=log.first_row)
     lines = analysis.live_notes if live else analysis.notes
     for line, row in enumerate(layout.note_rows, start=1):
         if line == 1:
