@@ -200,3 +200,14 @@ def test_unit_term_derivatives_of_the_prefix_series_match_mpmath(z):
             weight = np.array([prefixes._REACH ** k / math.factorial(k) for k in range(got.size)])
             # check value: mpmath.diff (above); tolerance 1e-12 of max(1, |T|) per weighed term (see above)
             assert np.max(np.abs(got - expected) * weight) <= 1e-12 * max(1.0, abs(expected[0])), name
+
+
+@pytest.mark.parametrize("test_time", [0.0, -5.0, math.nan])
+@pytest.mark.parametrize("model", ["gamma", "weibull", "lognormal"])
+def test_a_test_time_that_is_not_positive_is_refused_by_the_core(model, test_time):
+    # property: a test that stops every unit at time 0 (or before) has no information; the core refuses it by
+    # name rather than returning some σ² (a log of 0 would otherwise read as "never stopped")
+    from tailstop.core.time_terminated import time_terminated_sigma2
+
+    with pytest.raises(ValueError, match="test_time must be a positive number"):
+        time_terminated_sigma2("known-shape", 1000.0, 2.0, 600.0, test_time, model)
