@@ -46,6 +46,7 @@ def test_pass_fail_plug_in_is_one_over_p_hat_q_hat():
     p_hat = beyond / len(x)
     estimate = estimate_tail(x, THRESHOLD, "pass-fail")
     # check value: METHOD.md §3, σ² = 1/(p(1-p)) at p̂ = 5/12: 144/35 = 4.114285…
+    # tolerances 1e-14 / 1e-15: exact fractions in doubles, a few roundings; 1e-12 once z and a log enter
     assert beyond == 5
     assert estimate.sigma2 == pytest.approx(144 / 35, rel=1e-14)
     assert estimate.sigma2 == pytest.approx(1 / (p_hat * (1 - p_hat)), rel=1e-14)
@@ -59,6 +60,7 @@ def test_pass_fail_rule_uses_the_plain_share():
     x = sample()
     # check value: METHOD.md §5 and docs/method.md, the plain share p̂ = S/n = 5/12 in σ̂² = 1/(p̂(1 - p̂)) = 144/(5·7)
     needed = units_needed_now(x, THRESHOLD, 1.5, 0.95, "pass-fail")
+    # tolerances 1e-14 for an exact fraction in doubles, 1e-12 once z and a log enter
     assert needed.sigma2 == pytest.approx(144 / (5 * 7), rel=1e-14)
     assert needed.needed == pytest.approx((z_value(0.95) / math.log(1.5)) ** 2 * 144 / (5 * 7), rel=1e-12)
     whole = math.ceil((z_value(0.95) / math.log(1.5)) ** 2 * 144 / (5 * 7))
@@ -144,6 +146,7 @@ def test_planning_sigma2_and_unit_counts_against_mpmath(threshold, shape, scale)
         "fitted-shape": mp_fitted_sigma2(mpmath.mpf(shape), t),
     }
     z = z_value(0.95)
+    # tolerances: 1e-8 on σ² (the package's numerical shape derivative), 1e-9 on d, 1e-15 for 1/(p(1-p)) (rounding)
     for method, sigma2 in expected.items():
         assert float(model_sigma2(method, threshold, shape, scale)) == pytest.approx(float(sigma2), rel=1e-8), method
         n_star = (z / math.log(1.5)) ** 2 * float(sigma2)  # METHOD.md §4

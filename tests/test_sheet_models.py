@@ -78,7 +78,7 @@ def test_units_required_and_accuracy_for_units_under_a_weibull_guess():
     n_star = (Z95 / math.log(1.5)) ** 2 * sigma2
     assert sheet.UNITS_REQUIRED(500, 1, 1000, 1.5, 0.95, "known-shape", "weibull") == math.ceil(n_star)
     assert sheet.ACCURACY_FOR_UNITS(100, 500, 1, 1000, 0.95, "known-shape", "weibull") == \
-        pytest.approx(math.exp(Z95 * math.sqrt(sigma2 / 100)), rel=1e-6)
+        pytest.approx(math.exp(Z95 * math.sqrt(sigma2 / 100)), rel=1e-6)  # tolerance: Z95 has 7 digits
     # pass-fail under a model: σ² = 1/(p(1-p)) with p from that model (METHOD.md §3)
     p = math.exp(-0.5)
     assert sheet.UNITS_REQUIRED(500, 1, 1000, 1.5, 0.95, None, "weibull") == math.ceil((Z95 / math.log(1.5)) ** 2 / (p * (1 - p)))

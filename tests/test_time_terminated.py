@@ -66,6 +66,7 @@ def test_weibull_known_shape_by_hand():
     beta, eta, c, test_time = 2.0, 1000.0, 1000.0, 1000.0
     w, p, failed = 1.0, math.exp(-1.0), 1.0 - math.exp(-1.0)
     sigma2 = w ** 2 / ((1 - p) ** 2 * failed)
+    # tolerance 1e-12: the package integrates the information by scipy.integrate.quad, to about 1e-13
     assert time_terminated_sigma2("known-shape", c, beta, eta, test_time, "weibull") == pytest.approx(sigma2,
                                                                                                      rel=1e-12)
     factor = (1.959963984540054 / math.log(1.5)) ** 2  # z: NIST/SEMATECH §1.3.6.7.1
@@ -96,6 +97,7 @@ def test_accuracy_for_units_is_the_inverse_of_units_required_with_a_test_time():
     # METHOD.md §4: d = exp(z σ / √n)
     sigma2 = time_terminated_sigma2("fitted-shape", 1000.0, 2.0, 600.0, 1200.0)
     z = 1.959963984540054  # NIST/SEMATECH §1.3.6.7.1
+    # tolerance 1e-12: z to full double precision here, so only roundings of exp and sqrt remain
     assert ACCURACY_FOR_UNITS(100, 1000, 2, 600, 0.95, "fitted-shape", None, 1200) == pytest.approx(
         math.exp(z * math.sqrt(sigma2 / 100)), rel=1e-12)
 
