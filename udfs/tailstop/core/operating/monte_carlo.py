@@ -28,6 +28,7 @@ from .results import (
     _stop_confidence,
     _stop_z,
     default_n_max,
+    planned_units,
 )
 
 # Monte Carlo memory: replications per chunk and the longest block of units drawn at once.
@@ -422,12 +423,7 @@ def simulate(threshold, shape, scale, accuracy, confidence, pilot, method="known
     tail = lifetime.tail_probability(threshold, shape, scale)
     p = float(tail.p)
     sigma2 = float(model_sigma2(estimator.name, threshold, shape, scale, lifetime.name))
-    if not (0 < p < 1 and 0 < sigma2 < math.inf):
-        raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
-    n_star = float(_accuracy.units_for_accuracy(sigma2, accuracy, confidence))
-    n_max = default_n_max(n_star, pilot) if n_max is None else int(n_max)
-    if n_max < pilot:
-        raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
+    n_star, n_max = planned_units(p, sigma2, accuracy, confidence, pilot, n_max)
     check_work(simulation_work(estimator.name, min(n_star, n_max), pilot, replications, lifetime.name), work_bound,
                sigma2=sigma2, confidence=confidence)
     plan = _Plan(float(threshold), float(shape), float(scale), estimator.name, float(accuracy),

@@ -225,6 +225,17 @@ def confidence_for_z(z):
     return float(1.0 - 2.0 * stats.norm.sf(z))
 
 
+def planned_units(p, sigma2, accuracy, confidence, pilot, n_max=None):
+    """(n*, n_max) of a simulated plan at the guess's p and σ²; ValueError where no finite plan exists."""
+    if not (0 < p < 1 and 0 < sigma2 < math.inf):
+        raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
+    n_star = float(_accuracy.units_for_accuracy(sigma2, accuracy, confidence))
+    n_max = default_n_max(n_star, pilot) if n_max is None else int(n_max)
+    if n_max < pilot:
+        raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
+    return n_star, n_max
+
+
 def default_n_max(n_star, pilot):
     """A generous cap on N: 5 n* + 100 units, and never below the pilot."""
     return int(max(pilot, 5 * math.ceil(n_star)) + 100)

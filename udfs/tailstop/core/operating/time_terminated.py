@@ -18,14 +18,13 @@ import time
 
 import numpy as np
 
-from .. import accuracy as _accuracy
 from ..censored import censored_paths
 from ..methods import estimate_tail, get_method
 from ..models import DEFAULT_MODEL, get_model
 from ..sequential import stopping_units
 from ..time_terminated import check_test_time, time_terminated_sigma2
 from .monte_carlo import _Plan, _simulated_result
-from .results import DEFAULT_SEED, OperatingCharacteristics, _check_plan, _stop_z, default_n_max
+from .results import DEFAULT_SEED, OperatingCharacteristics, _check_plan, _stop_z, planned_units
 
 __all__ = ["simulate_with_test_time", "TimeTerminatedRuns"]
 
@@ -79,12 +78,7 @@ def _setup(threshold, shape, scale, accuracy, confidence, pilot, method, test_ti
     check_test_time(test_time, threshold, estimator.name)
     p = float(lifetime.tail_probability(threshold, shape, scale).p)
     sigma2 = time_terminated_sigma2(estimator.name, threshold, shape, scale, test_time, lifetime.name)
-    if not (0 < p < 1 and 0 < sigma2 < math.inf):
-        raise ValueError("the guess puts (almost) every unit on one side of the threshold; no finite plan exists")
-    n_star = float(_accuracy.units_for_accuracy(sigma2, accuracy, confidence))
-    n_max = default_n_max(n_star, pilot) if n_max is None else int(n_max)
-    if n_max < pilot:
-        raise ValueError(f"n_max must be at least the pilot ({pilot}, got {n_max})")
+    n_star, n_max = planned_units(p, sigma2, accuracy, confidence, pilot, n_max)
     plan = _Plan(float(threshold), float(shape), float(scale), estimator.name, float(accuracy), float(confidence),
                  int(pilot), n_max, int(check_every), p)
     return plan, n_star, estimator, lifetime
