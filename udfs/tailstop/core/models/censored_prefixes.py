@@ -204,8 +204,7 @@ class _Prefixes:
         self.location = np.full(size, np.nan)
         self.log_width = np.full(size, np.nan)
         self.sigma2 = np.full(size, np.nan)
-        limiting = flags if self.terms.exact_failures else np.ones(size, dtype=bool)
-        self.limiting = limiting
+        self.limiting = flags if self.terms.exact_failures else np.ones(size, dtype=bool)
 
     # ---------------------------------------------------------------- direct fits
 
