@@ -143,15 +143,18 @@ def _check_png(path, force):
         raise ValueError(f"--png {path}: the folder {folder} cannot be written to")
 
 
-def _compute(method, args, plan, p, counts, bar):
-    """The operating characteristics of one method, or the refusal text when the plan is beyond the bound."""
+def _compute(method, args, plan, p, counts, bar, kept_runs=None):
+    """The operating characteristics of one method, or the refusal text when the plan is beyond the bound.
+
+    Under a test time the simulated runs of a method are left in ``kept_runs`` for the calibration.
+    """
     from ..core import operating
 
     try:
         if plan is None:
             return operating.pass_fail_exact(p, args.accuracy, args.confidence, args.pilot, progress=bar, method=method)
         if args.test_time is not None:
-            return _with_test_time(plan, args.test_time, method, counts, args.seed, bar, args.model)
+            return _with_test_time(plan, args.test_time, method, counts, args.seed, bar, args.model, kept_runs)
         options = {"progress": bar, "model": args.model}
         if method not in EXACT_METHODS:
             options.update(replications=counts[method], seed=args.seed)
@@ -160,17 +163,24 @@ def _compute(method, args, plan, p, counts, bar):
         return str(refused)
 
 
-def _with_test_time(plan, test_time, method, counts, seed, progress, model="gamma"):
-    """One method's figures when every unit is stopped at ``test_time``."""
+def _with_test_time(plan, test_time, method, counts, seed, progress, model="gamma", kept_runs=None):
+    """One method's figures when every unit is stopped at ``test_time``.
+
+    The simulated runs are kept whole (``TimeTerminatedRuns``, the runs and figures of
+    ``simulate_with_test_time``), so that a calibration asks them at other critical values.
+    """
     from ..core import operating
-    from ..core.operating.time_terminated import simulate_with_test_time
+    from ..core.operating.time_terminated import TimeTerminatedRuns
 
     if method in EXACT_METHODS:
         if test_time < plan[0]:
             return f"{method} cannot see past a test time below the threshold"
         return operating.operating_characteristics(*plan, method, model=model, progress=progress)
-    return simulate_with_test_time(*plan, method, test_time, replications=counts[method], seed=seed, model=model,
-                                   progress=progress)
+    runs = TimeTerminatedRuns(*plan, method, test_time, replications=counts[method], seed=seed, model=model,
+                              progress=progress)
+    if kept_runs is not None:
+        kept_runs[method] = runs
+    return runs.at()
 
 
 def run(args, out=None, progress_stream=None):
@@ -194,11 +204,11 @@ def run(args, out=None, progress_stream=None):
         _require_matplotlib()
         _check_png(args.png, args.force)
     counts = {"known-shape": args.replications, "fitted-shape": args.fitted_replications}
-    results, refused = {}, {}
+    results, refused, kept_runs = {}, {}, {}
     for method in methods:
         bar = ProgressBar(f"{method}", progress_stream)
         try:
-            outcome = _compute(method, args, plan, p, counts, bar)
+            outcome = _compute(method, args, plan, p, counts, bar, kept_runs)
         finally:
             bar.close()
         (refused if isinstance(outcome, str) else results)[method] = outcome
@@ -235,14 +245,12 @@ def run(args, out=None, progress_stream=None):
               "restores it at this guess.", file=out)
     if to_calibrate:
         print(file=out)
-        runs_used = {}
-        print(_aligned(_calibration_table(plan, p, args, to_calibrate, counts, progress_stream, runs_used)), file=out)
-        for method, used in runs_used.items():
-            which = (f"the {used:,} runs of the table above" if used == counts[method] else
-                     f"the first {used:,} of the table's {counts[method]:,} runs (as many as fit in "
-                     f"{operating.COMMAND_SECONDS:g} s)")
-            print(f"{method}: calibrated on {which}, every unit stopped at {args.test_time:g}; each run is kept "
-                  "whole, so every z' sees the same units.", file=out)
+        print(_aligned(_calibration_table(plan, p, args, to_calibrate, counts, progress_stream, kept_runs)), file=out)
+        for method in to_calibrate:
+            if method in kept_runs:
+                print(f"{method}: calibrated on the {kept_runs[method].replications:,} runs of the table above, every "
+                      f"unit stopped at {args.test_time:g}; each run is kept whole, so every z' sees the same units.",
+                      file=out)
         print("To run a calibrated plan, give the decision formulas the confidence 2Φ(z') - 1 shown "
               "(docs/method.md). Calibration simulates on common random numbers (every run sees the same "
               "lifetimes at every z'), so its coverage at z can differ from the table above within Monte Carlo "
@@ -278,20 +286,6 @@ def _aligned(rows):
     return "\n".join(lines)
 
 
-def _test_time_evaluator(plan, args, method, counts, progress=None):
-    """``z' -> figures`` of a simulated method on the test stopped at --test-time, and the runs it made.
-
-    The runs are simulated once, within the command's time bound, each kept
-    as its whole path (``TimeTerminatedRuns``); every z' then costs a search.
-    """
-    from ..core import operating
-    from ..core.operating.time_terminated import TimeTerminatedRuns
-
-    runs = TimeTerminatedRuns(*plan, method, args.test_time, replications=counts[method], seed=args.seed,
-                        model=args.model, seconds=operating.COMMAND_SECONDS, progress=progress)
-    return runs.at, runs.replications
-
-
 def _evaluator(plan, p, args, method, counts):
     from ..core import operating
 
@@ -307,23 +301,15 @@ class _OutOfTime(Exception):
     pass
 
 
-def _calibration_table(plan, p, args, methods, counts, progress_stream, runs_used=None):
-    """The calibration rows; ``runs_used`` collects how many runs each method simulated under a test time."""
+def _calibration_table(plan, p, args, methods, counts, progress_stream, kept_runs=None):
+    """The calibration rows; a method with runs in ``kept_runs`` (a test time) is calibrated on those runs."""
     from ..core import operating
 
+    kept_runs = kept_runs or {}
     rows = [["calibrated critical value", *methods]]
     found = {}
     for method in methods:
-        if args.test_time is not None and method not in EXACT_METHODS:
-            bar = ProgressBar(f"simulating {method} for calibration", progress_stream)
-            try:
-                evaluate, used = _test_time_evaluator(plan, args, method, counts, bar)
-            finally:
-                bar.close()
-            if runs_used is not None:
-                runs_used[method] = used
-        else:
-            evaluate = _evaluator(plan, p, args, method, counts)
+        evaluate = kept_runs[method].at if method in kept_runs else _evaluator(plan, p, args, method, counts)
         bar = ProgressBar(f"calibrating {method}", progress_stream)
         start = time.monotonic()
 
