@@ -581,18 +581,29 @@ def unit_hours_book(units, seed):
     return book, log
 
 
+FORMATTED_BLANK = "formatted blank"  # a placed cell that holds a fill, a border and a number format, no value
+PLACED_VALUES = st.one_of(CELL_VALUES, st.just(FORMATTED_BLANK))
+BLANK_FILL = openpyxl.styles.PatternFill("solid", fgColor="DDEBF7")
+
+
 def mixed_log(path, placed):
     """A 60-unit log on sheet 'Log' with ``placed`` (row, column, value, on the other sheet?) cells around it."""
     book, log = unit_hours_book(60, 3)
     other = book.create_sheet("Other")
     for row, column, value, elsewhere in placed:
-        (other if elsewhere else log).cell(row + 1, column, value)
+        cell = (other if elsewhere else log).cell(row + 1, column)
+        if value is FORMATTED_BLANK:
+            thin = openpyxl.styles.Side(style="thin")
+            cell.value = None
+            cell.fill, cell.border, cell.number_format = BLANK_FILL, openpyxl.styles.Border(bottom=thin), "0.0"
+        else:
+            cell.value = value
     book.save(path)
     return path
 
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), CELL_VALUES, st.booleans()), max_size=25))
+@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), PLACED_VALUES, st.booleans()), max_size=25))
 def test_annotate_keeps_whatever_else_the_book_holds(placed):
     # property: any mix of values and formulas beside the log and on another sheet comes through unchanged
     import tempfile
@@ -606,15 +617,25 @@ def test_annotate_keeps_whatever_else_the_book_holds(placed):
         for title, cells in before.items():
             assert {c: after[title].get(c) for c in cells} == cells, title
         added = {openpyxl.utils.cell.coordinate_to_tuple(c) for c in after["Log"] if c not in before["Log"]}
-        taken = set(log._cells)  # every cell the sheet holds, blank strings and styled blanks too
+        # cells with a value or a formula are never written over; a formatted blank only in the decision column
+        taken = {key for key, cell in log._cells.items() if cell.value not in (None, "")}
         assert not added & taken
-        # the decisions go into the first column right of the log (B) with nothing in rows 1..61
+        # the decisions go into the first column right of the log (B) with no value or formula in rows 1..61
         log_rows = range(1, result.log.last_row + 1)
         free = next(column for column in range(3, 100) if not any((row, column) in taken for row in log_rows))
         assert result.decision_column == free
         block = openpyxl.utils.cell.range_boundaries(result.block)
         assert {column for _, column in added} <= {free, block[0], block[2]}
+        assert not added & {key for key in log._cells if key[1] != free}  # the block over no cell at all
         assert set(after["Other"]) == set(before["Other"])
+        # every formatted blank keeps its format, with a decision written into it or not
+        written = openpyxl.load_workbook(result.path)["Log"]
+        for (row, column), cell in log._cells.items():
+            if cell.value is None and cell.has_style:
+                assert written.cell(row, column).fill == BLANK_FILL, (row, column)
+                assert written.cell(row, column).number_format == "0.0", (row, column)
+        assert result.formats_kept == sum(1 for (row, column), cell in log._cells.items() if column == free
+                                          and cell.value is None and cell.has_style and row <= result.log.last_row)
 
 
 def test_a_number_openpyxl_cannot_write_back_is_refused_by_the_check(tmp_path):

@@ -24,7 +24,7 @@ from tailstop.commands.annotate import summary
 from tailstop.workbooks.annotate import AnnotateRefused, annotate, default_output
 from tailstop.workbooks import sheet_stream
 from test_safe_io import read_parts, write_parts
-from test_annotate import (CELL_VALUES, LOG_SHEET, all_cells, bench_lifetimes, mixed_log, plan, rich_log, rule_stop,
+from test_annotate import (CELL_VALUES, LOG_SHEET, PLACED_VALUES, all_cells, bench_lifetimes, mixed_log, plan, rich_log, rule_stop,
                            unit_hours_book)
 
 MAIN = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
@@ -142,8 +142,8 @@ def test_in_place_keeps_a_backup(log_path):
 def test_a_changed_cell_stops_the_streamed_write(log_path, monkeypatch):
     real = sheet_stream.extended_rows
 
-    def tampered(region, additions, last_column):
-        for piece in real(region, additions, last_column):
+    def tampered(region, additions, last_column, **options):
+        for piece in real(region, additions, last_column, **options):
             yield piece.replace(b"<v>1100.4</v>", b"<v>1100.5</v>")
 
     assert b"<v>1100.4</v>" in sheet_part(log_path, LOG_SHEET)
@@ -303,7 +303,7 @@ def test_rows_the_log_lacks_are_inserted_in_order(tmp_path):
 
 
 @settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), CELL_VALUES, st.booleans()), max_size=25))
+@given(st.lists(st.tuples(st.integers(1, 70), st.integers(3, 8), PLACED_VALUES, st.booleans()), max_size=25))
 def test_streaming_keeps_whatever_else_the_book_holds(placed):
     # property: any mix of values and formulas beside the log comes through the byte editor as through openpyxl
     import tempfile
@@ -313,6 +313,8 @@ def test_streaming_keeps_whatever_else_the_book_holds(placed):
         full, streamed = both_paths(path, folder, "Hours", plan(threshold=1200))
         assert all_cells(streamed.path) == all_cells(full.path)
         assert streamed.decision_column == full.decision_column
+        assert styles_of(streamed.path, "Log") == styles_of(full.path, "Log")
+        assert streamed.formats_kept == full.formats_kept
 
 
 def test_the_style_sheet_edit_appends_and_counts():
@@ -459,8 +461,8 @@ def test_a_user_cell_taken_out_with_an_earlier_run_stops_the_write(log_path, mon
     annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)
     real = sheet_stream._without_cells
 
-    def greedy(content, row, columns):
-        return real(content, row, {*columns, 4})  # also the lifetime in column D
+    def greedy(content, row, columns, formats=None):
+        return real(content, row, {*columns, 4}, formats)  # also the lifetime in column D
 
     monkeypatch.setattr(sheet_stream, "_without_cells", greedy)
     before = log_path.read_bytes()
@@ -472,7 +474,7 @@ def test_a_user_cell_taken_out_with_an_earlier_run_stops_the_write(log_path, mon
 def test_an_earlier_run_left_in_a_row_stops_the_write(log_path, monkeypatch):
     # the other way round: an earlier decision not taken out meets the new one; the stream gives up before writing
     annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)
-    monkeypatch.setattr(sheet_stream, "_without_cells", lambda content, row, columns: content)
+    monkeypatch.setattr(sheet_stream, "_without_cells", lambda content, row, columns, formats=None: content)
     before = log_path.read_bytes()
     with pytest.raises(AnnotateRefused, match="cannot be edited as a stream: a new cell in column"):
         annotate(log_path, column="D", plan=plan(), in_place=True, backup=False, streaming=True)

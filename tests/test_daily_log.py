@@ -172,6 +172,58 @@ def test_into_a_column_of_the_user_s_choice(tmp_path, capsys, streaming):
         assert (f"'Bearing test'!{cell} already holds a cell" in err) if cell else "the log column itself" in err
 
 
+def format_column(path, column, first, last):
+    """A column the user formatted ahead over rows ``first``..``last`` (fill, border, number format, width), no
+    value in it: as a log kept in a ruled table looks."""
+    from openpyxl.styles import Border, PatternFill, Side
+
+    book = openpyxl.load_workbook(path)
+    sheet = book[SHEET]
+    for row in range(first, last + 1):
+        cell = sheet.cell(row, column)
+        cell.fill, cell.border, cell.number_format = PatternFill("solid", fgColor="FFF2CC"), Border(
+            left=Side(style="thin"), right=Side(style="thin")), "@"
+    sheet.column_dimensions[openpyxl.utils.get_column_letter(column)].width = 13
+    book.save(path)
+
+
+@pytest.mark.parametrize("live", [False, True], ids=["values", "live"])
+def test_a_column_that_is_only_formatted_takes_the_decisions_and_keeps_its_format(tmp_path, capsys, soffice,
+                                                                                   streaming, live):
+    from book_contents import contents
+
+    hours = bearing_hours()
+    path = bearing_log(tmp_path / "bearing.xlsx", hours, average=False)
+    format_column(path, 5, HEADER_ROW, 80)  # E, the column next to the log, formatted down past the log
+    original = contents(path)["sheet"][SHEET]
+    code, out, _ = run(capsys, path, "--column", "C", *RULE, *(["--live"] if live else []))
+    assert code == 0
+    assert "decision column 'Bearing test'!E" in out  # formatting alone does not make a column taken
+    # every formatted cell written keeps its format: the header and the 60 units' rows (the live decisions also
+    # fill the log's two blank rows and the margin below it, down to row 80 of the formatted ones)
+    assert f"kept: the format already on {78 if live else 61} cells of the decision column" in out
+    annotated = tmp_path / "bearing-tailstop.xlsx"
+    written = contents(annotated)["sheet"][SHEET]
+    for coordinate, (value, style) in original["cells"].items():
+        assert written["cells"][coordinate][1] == style, coordinate  # read by openpyxl alone (book_contents)
+    assert written["widths"][5] == original["widths"][5] == (13, False)
+    rows = log_rows(hours)
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
+    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    shown = openpyxl.load_workbook(convert_with_libreoffice(annotated, tmp_path / "lo"), data_only=True)
+    assert shown_errors(shown) == []
+    assert shown[SHEET]["E3"].value == DECISION_HEADER
+    assert [shown[SHEET].cell(row, 5).value for row in rows] == expected
+    # a week later the user's own format on the decision cells survives the run again
+    book = openpyxl.load_workbook(annotated)
+    book[SHEET]["E20"].font = openpyxl.styles.Font(italic=True)
+    book.save(annotated)
+    before = contents(annotated)["sheet"][SHEET]["cells"]
+    annotate(annotated, column="C", plan=the_plan(), in_place=True, backup=False, live=live)
+    after = contents(annotated)["sheet"][SHEET]["cells"]
+    assert {c: after[c] for c in before if c.startswith("E")} == {c: v for c, v in before.items() if c.startswith("E")}
+
+
 # --------------------------------------------------------------------------- in a spreadsheet program
 
 

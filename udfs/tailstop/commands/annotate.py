@@ -124,6 +124,9 @@ def summary(result) -> str:
     column = f"{sheet_reference(log.sheet_title)}!{get_column_letter(result.decision_column)}"
     mode = "tailstop formulas with cached values" if result.live else "values"
     lines.append(f"  wrote: decision column {column} ({DECISION_HEADER!r}), estimate block {result.block}, as {mode}")
+    if result.formats_kept:
+        lines.append(f"  kept: the format already on {result.formats_kept} cell{'s' if result.formats_kept != 1 else ''} "
+                     "of the decision column (they held no value), under the decisions written there")
     if result.copied_parts is None:
         lines.append(f"  checked: all {result.cells_checked:,} cells of {result.sheets_checked} sheet"
                      f"{'s' if result.sheets_checked != 1 else ''} kept their values and formulas")

@@ -3,9 +3,10 @@
 What it writes (layout in ``workbooks/log_layout.py``):
 
 * the **decision column** next to the log: the first column right of the
-  lifetimes that holds nothing in the log's rows (or the column ``into``
-  names, refused if it holds anything there), its header in the log's header
-  row, one decision per log row;
+  lifetimes that holds no value or formula in the log's rows (or the column
+  ``into`` names, refused if it holds one there), its header in the log's
+  header row, one decision per log row; a cell there that holds only a format
+  (a fill, a border, a number format) is written into and keeps its format;
 * the **estimate block** from row 1 down, in the first two columns at least
   one column right of the decision column that hold nothing in the block's
   rows: the rule's settings, where it stopped, the estimate and its bounds
@@ -14,8 +15,8 @@ What it writes (layout in ``workbooks/log_layout.py``):
 
 The header need not be in row 1: it is the last caption above the first
 value of the column (title rows, a merged title and blank rows may stand
-above it), or the row ``header_row`` gives. No cell that holds anything, not
-even a styled blank, is written over.
+above it), or the row ``header_row`` gives. No cell that holds a value or a
+formula is written over, and the block goes where no cell stands at all.
 
 By default both hold computed values, so the file reads the same in any
 spreadsheet program. With ``live`` they hold tailstop formulas (with the
@@ -141,10 +142,14 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     analysis = analyse_log(log, values, plan)
     before = cell_check.snapshot(book)
     cached = dict(before.rounded)  # numbers openpyxl would round are stored exactly
+    formatted = _formatted_blanks(worksheet)
     earlier = _clear_earlier(worksheet, log)
     decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached,
                                                   into if into is not None or earlier.decision_column is None
                                                   else earlier.decision_column, earlier)
+    stored = worksheet._cells
+    kept = sum(1 for key in formatted if key[1] == decision_column and key in stored
+               and stored[key]._value not in (None, ""))
     checked = before.cell_count
     expected = cell_check.expected_after(before, {worksheet.title: added}, in_place=True)
     data = _package_bytes(book, cached)
@@ -153,15 +158,28 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     saved = write_file_atomically(target, lambda handle: handle.write(data), in_place=in_place, backup=backup)
     _check_written(saved.path, data)
     return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
-                          checked, len(before.cells), losses, live, header=header, margin=log.last_row - filled)
+                          checked, len(before.cells), losses, live, header=header, margin=log.last_row - filled,
+                          formats_kept=kept)
+
+
+def _formatted_blanks(worksheet):
+    """(row, column) of the cells that hold a format and no content."""
+    return [key for key, cell in worksheet._cells.items() if cell._value in (None, "") and cell.has_style]
 
 
 def _clear_earlier(worksheet, log):
-    """Take an earlier run's cells and STOP highlight off the sheet, to be written again for the log as it is now."""
+    """Take an earlier run's cells and STOP highlight off the sheet, to be written again for the log as it is now.
+
+    A cell of the earlier decision column that holds a format keeps it (a formatted blank now), so that the
+    decision written there again keeps the look the user gave it; the block's cells go.
+    """
     stored = worksheet._cells
     earlier = earlier_run({key: cell._value for key, cell in stored.items()}, log)
     for key in earlier.cells:
-        del stored[key]
+        if key[1] == earlier.decision_column and stored[key].has_style:
+            stored[key].value = None
+        else:
+            del stored[key]
     if earlier.decision_column is not None:
         _drop_highlight(worksheet, earlier.decision_column)
     return earlier
@@ -186,13 +204,17 @@ def _add(worksheet, log, values, analysis, live, cached, into, earlier):
     -------
     (decision column, BlockLayout, {row: markup to append}, {cell key: canonical content of every added cell})
     """
-    occupancy = Occupancy.from_keys(worksheet._cells, [ranged.bounds for ranged in worksheet.merged_cells.ranges])
+    merged = [ranged.bounds for ranged in worksheet.merged_cells.ranges]
+    occupancy = Occupancy.from_keys(worksheet._cells, merged)
+    content = Occupancy.from_keys([key for key, cell in worksheet._cells.items() if cell._value not in (None, "")],
+                                  merged)
     decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into,
-                                                          block_at=earlier.label_column)
+                                                          block_at=earlier.label_column, content=content)
     write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
                          source="values computed by tailstop annotate")
     # decision cells can be appended to the end of openpyxl's row markup only where nothing stands to their right
-    crowded = {row for row, column in worksheet._cells if column > decision_column}
+    # (and where the decision column holds no cell yet: a formatted blank is written into, keeping its format)
+    crowded = {row for row, column in worksheet._cells if column >= decision_column}
     as_markup = [row for row in _rows_written_anyway(log, values, layout) if row not in crowded]
     markup = write_decision_column(worksheet, log, decision_column, analysis, live=live, cached=cached,
                                    layout=layout, as_markup=as_markup)

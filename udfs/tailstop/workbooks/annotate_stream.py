@@ -130,7 +130,7 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
         split = ss.split_sheet(archive.read(part))
         styles_xml = archive.read(styles_part)
     try:
-        shape, log, values, header, occupancy, earlier = _scan(split, package, title, column, header_row)
+        shape, log, values, header, (occupancy, content), earlier = _scan(split, package, title, column, header_row)
     except cell_check.UnreadableCells as problem:
         raise WorkbookRefused(f"{source.name}: sheet {title!r}: {problem}") from None
     check_log_column(log, header)
@@ -139,10 +139,11 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     analysis = analyse_log(log, values, plan)
     del values
     earlier.release(occupancy)
+    earlier.release(content)
     wanted = into if into is not None or earlier.decision_column is None else earlier.decision_column
     decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, wanted,
-                                                          block_at=earlier.label_column)
-    del occupancy
+                                                          block_at=earlier.label_column, content=content)
+    del occupancy, content
     edit = ss.StylesEdit(styles_xml, BUILTIN_FORMATS_REVERSE, _ExistingFormats(styles_xml))
     block, added, cf = _block_markup(title, log, decision_column, layout, analysis, live, edit)
     last_row = max(shape.max_row, log.last_row, layout.last_row)
@@ -158,9 +159,13 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     def edits():
         return _edits(_additions(log, decision_column, analysis.decisions, rule, block), earlier.removals())
 
+    kept = {}
+
     def write(handle):
-        _write_package(source, handle, part, styles_part, new_styles,
-                       (head, ss.extended_rows(split, edits(), max(shape.max_column, label_column + 1)), tail))
+        kept.clear()
+        rows = ss.extended_rows(split, edits(), max(shape.max_column, label_column + 1),
+                                keep_formats={decision_column}, kept=kept)
+        _write_package(source, handle, part, styles_part, new_styles, (head, rows, tail))
 
     checked = {}
 
@@ -171,7 +176,8 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     saved = write_file_atomically(target, write, in_place=in_place, backup=backup, check=check)
     return AnnotateResult(saved.path, saved.backup, log, decision_column, layout.reference(), analysis,
                           checked["cells"], len(worksheets), [], live, copied_parts=checked["copied"],
-                          header="" if header is None else str(header), margin=log.last_row - filled)
+                          header="" if header is None else str(header), margin=log.last_row - filled,
+                          formats_kept=kept.get("blanks", 0))
 
 
 def _sheet_title(workbook, titles, worksheets, sheet, source):
@@ -191,8 +197,8 @@ def _sheet_title(workbook, titles, worksheets, sheet, source):
 
 
 def _scan(split, package, title, column, header_row):
-    """The sheet's shape, the log range and values, the header cell's value, where the sheet has cells, and
-    the cells an earlier run wrote (``EarlierCells``).
+    """The sheet's shape, the log range and values, the header cell's value, where the sheet has cells (any
+    cell, and cells with content), and the cells an earlier run wrote (``EarlierCells``).
 
     The cells of the top rows (``HEADER_SEARCH_ROWS``, or down to ``header_row``) are kept until the log
     column is known from them; from then on only that column's values are, and the rows of the decision-like
@@ -200,7 +206,7 @@ def _scan(split, package, title, column, header_row):
     """
     shape = ss.SheetShape()
     reader = cell_check.SliceReader(package, split.root)
-    occupancy, letters = Occupancy(), {}
+    occupancy, content, letters = Occupancy(), Occupancy(), {}
     window = max(header_row or 0, HEADER_SEARCH_ROWS)
     number, found, top = None, {}, {}
     marks, top_positions = _Marks(), []
@@ -211,6 +217,8 @@ def _scan(split, package, title, column, header_row):
             if row <= HEADER_SEARCH_ROWS:
                 top_positions.append((row, col))
         cells = reader.cells(piece)
+        for key in cells:
+            content.add(key >> 14, key & _COLUMN_MASK)
         marks.take(cells)
         if number is None:
             top.update({(key >> 14, key & 0x3FFF): cell_check.raw_value(value) for key, value in cells.items()
@@ -227,11 +235,12 @@ def _scan(split, package, title, column, header_row):
     shape.take_merges(split.tail)
     for rectangle in ss.merged_ranges(split.tail):
         occupancy.add_merged(*rectangle)
+        content.add_merged(*rectangle)
     header = first_log_row(title, number, found, header_row)
     last = max((row for row, value in found.items() if value is not None), default=header)
     values = [found.get(row) for row in range(header + 1, last + 1)]
     log = LogRange(title, number, header + 1, last)
-    return shape, log, values, found.get(header), occupancy, marks.earlier(top, top_positions, log)
+    return shape, log, values, found.get(header), (occupancy, content), marks.earlier(top, top_positions, log)
 
 
 _COLUMN_MASK = 0x3FFF

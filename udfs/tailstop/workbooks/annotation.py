@@ -55,6 +55,8 @@ class AnnotateResult:
         The text of the header cell (the row above ``log.first_row``).
     margin : int
         Empty rows below the log that the live formulas cover (``log`` includes them).
+    formats_kept : int
+        Cells of the decision column that held a format and no content: written with that format kept.
     """
 
     path: Path
@@ -70,6 +72,7 @@ class AnnotateResult:
     copied_parts: int | None = None
     header: str = ""
     margin: int = 0
+    formats_kept: int = 0
 
 
 def default_output(source) -> Path:
@@ -167,20 +170,22 @@ def is_decision(value) -> bool:
         value.startswith("=") and "STOP_DECISION(" in value.upper())
 
 
-def place_columns(log, occupancy, analysis, live, into=None, block_at=None):
+def place_columns(log, occupancy, analysis, live, into=None, block_at=None, content=None):
     """The decision column, the estimate block's label column and its layout, over no cell that holds anything.
 
     The decision column covers the header row and the log's rows: the column ``into`` names, or the first
-    column right of the log free there. The block takes the first two adjacent columns, at least
-    ``BLOCK_GAP`` columns right of the decision column, that are free in the block's rows; ``block_at``
-    (where an earlier run put it) when it is free there.
+    column right of the log free there — with no value or formula there (``content``; a cell that only holds
+    a format does not count, and keeps its format). The block takes the first two adjacent columns, at least
+    ``BLOCK_GAP`` columns right of the decision column, that hold no cell at all in the block's rows
+    (``occupancy``); ``block_at`` (where an earlier run put it) when it is free there.
     """
     rows = (log.first_row - 1, log.last_row)
+    taken = occupancy if content is None else content
     if into is not None:
-        decision_column = _into_column(log, occupancy, into, rows)
+        decision_column = _into_column(log, taken, into, rows)
     else:
         decision_column = next((column for column in range(log.column + 1, GRID_COLUMNS + 1)
-                                if occupancy.free(column, *rows)), None)
+                                if taken.free(column, *rows)), None)
     notes = LIVE_NOTE_LINES if live else len(analysis.notes)
     probe = block_layout(1, 1, notes)
     block_rows = (probe.top_row, probe.last_row)
@@ -207,8 +212,8 @@ def _into_column(log, occupancy, into, rows):
     taken = occupancy.first_taken(column, *rows)
     if taken is not None:
         raise AnnotateRefused(f"--into {letter}: {sheet_reference(log.sheet_title)}!{letter}{taken} already holds "
-                              f"a cell (rows {rows[0]} to {rows[1]} of that column must be empty); choose another "
-                              "column, or leave --into out to take the first free one")
+                              f"a cell (rows {rows[0]} to {rows[1]} of that column must hold no value or formula); "
+                              "choose another column, or leave --into out to take the first free one")
     return column
 
 

@@ -751,9 +751,10 @@ def write_decision_column(sheet, log: LogRange, column: int, analysis: LogAnalys
 
 
 def write_decision_header(sheet, log: LogRange, column: int, header: str = DECISION_HEADER):
-    """The decision column's header cell, in the row above the log."""
+    """The decision column's header cell, in the row above the log; a cell that holds a format keeps it."""
     head = sheet.cell(log.first_row - 1, column, header)
-    head.font, head.fill = HEADER_FONT, HEADER_FILL
+    if not head.has_style:
+        head.font, head.fill = HEADER_FONT, HEADER_FILL
 
 
 def highlight_stop(sheet, log: LogRange, column: int):
@@ -815,7 +816,8 @@ def decision_content(log: LogRange, row: int, decision: str, rule: str | None = 
 
 
 def _write_texts(sheet, column, first_row, texts):
-    """Put plain texts down a column of empty cells ('' leaves a cell empty).
+    """Put plain texts down a column of empty cells ('' leaves a cell empty); a cell that holds only a format
+    keeps it.
 
     Builds the cells directly, as openpyxl's own reader does: a long log has
     a hundred thousand of them, and ``sheet.cell`` costs twice as much each.
@@ -824,11 +826,12 @@ def _write_texts(sheet, column, first_row, texts):
     for offset, text in enumerate(texts):
         if text:
             row = first_row + offset
-            if (row, column) in stored:
+            cell = stored.get((row, column))
+            if cell is None:
+                cell = stored[(row, column)] = Cell(sheet, row=row, column=column)
+            elif cell._value not in (None, ""):
                 raise ValueError(f"{get_column_letter(column)}{row} is not empty")
-            cell = Cell(sheet, row=row, column=column)
             cell._value, cell.data_type = text, "s"
-            stored[(row, column)] = cell
 
 
 def column_is_free_of_widths(sheet, column) -> bool:

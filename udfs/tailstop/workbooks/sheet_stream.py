@@ -334,7 +334,7 @@ def cell_markup(coordinate: str, style: int, data_type: str, value, cached=None)
     raise ValueError(f"no markup for a {data_type!r} cell")
 
 
-def extended_rows(sheet: SheetXml, edits, last_column: int):
+def extended_rows(sheet: SheetXml, edits, last_column: int, keep_formats=(), kept=None):
     """The sheet's rows with ``edits`` — ``(row, [(column, markup), ...], {columns})`` in increasing row order —
     made: the cells of the listed columns taken out of the row, the new cells added.
 
@@ -343,9 +343,16 @@ def extended_rows(sheet: SheetXml, edits, last_column: int):
     ``spans`` hint is widened to ``last_column``); a row that does not exist
     is inserted in order, and a row this editor inserted (no attribute but its
     number) that is left without a cell is dropped. After the removals, the
-    columns of new cells hold no cell of the row. Yields pieces of bytes.
+    columns of new cells hold no cell of the row but cells without content
+    (formatted blanks), which the new cells replace.
+
+    In the columns of ``keep_formats`` a new cell takes the format (the ``s``
+    attribute, when not 0) of the cell it replaces, a formatted blank or a
+    cell taken out; ``kept`` (a dict) counts under ``"blanks"`` the formatted
+    blanks whose format was taken. Yields pieces of bytes.
     """
     xml, limit = sheet.xml, sheet.end
+    keep_formats = set(keep_formats)
     pending = next(edits, None)
     position = sheet.start
     for match in _ROW_TAG.finditer(xml, sheet.start, limit):
@@ -369,7 +376,13 @@ def extended_rows(sheet: SheetXml, edits, last_column: int):
             end = xml.find(b"</row>", match.end(), limit)
             if end < 0:
                 raise NotStreamable(f"row {row} is not closed")
-            content = _without_cells(xml[match.end(): end], row, removed) if removed else xml[match.end(): end]
+            content, formats = xml[match.end(): end], {}
+            if removed:
+                content = _without_cells(content, row, removed, formats)
+            if cells:
+                content = _without_blanks(content, row, [column for column, _ in cells], formats, kept)
+                cells = [(column, _with_format(markup, formats[column]) if formats.get(column) and
+                          column in keep_formats else markup) for column, markup in cells]
             if not content and not cells and match.group(1).strip() == b'r="%d"' % row:
                 position = end + len(b"</row>")
             else:
@@ -383,30 +396,67 @@ def extended_rows(sheet: SheetXml, edits, last_column: int):
         pending = next(edits, None)
 
 
+_FORMAT = re.compile(rb'\ss="([0-9]+)"')
+_NEW_CELL_START = re.compile(rb'^(<c r="[A-Z]{1,3}[0-9]+")(?: s="[0-9]+")?')
+
+
+def _with_format(markup: bytes, style: int) -> bytes:
+    """New cell markup with the format ``style`` (an index into the style sheet's cell formats)."""
+    return _NEW_CELL_START.sub(lambda found: found.group(1) + b' s="%d"' % style, markup, count=1)
+
+
+def _cell_span(content: bytes, row: int, column: int):
+    """(start, end of the start tag, end) of the cell element of ``column`` in a row's markup, or None."""
+    start = content.find(b'<c r="%s%d"' % (get_column_letter(column).encode(), row))
+    if start < 0:
+        return None
+    tag_end = content.find(b">", start)
+    if tag_end < 0:
+        raise NotStreamable(f"a cell of row {row} is not closed")
+    if content[tag_end - 1] == ord("/"):
+        return start, tag_end + 1, tag_end + 1
+    end = content.find(b"</c>", tag_end)
+    if end < 0:
+        raise NotStreamable(f"a cell of row {row} is not closed")
+    return start, tag_end + 1, end + len(b"</c>")
+
+
+def _format_of(content: bytes, span) -> int:
+    found = _FORMAT.search(content, span[0], span[1])
+    return int(found.group(1)) if found else 0
+
+
+def _without_cells(content: bytes, row: int, columns, formats=None) -> bytes:
+    """A row's cell markup without the cells of ``columns``; ``formats`` collects {column: their format}."""
+    spans = []
+    for column in columns:
+        span = _cell_span(content, row, column)
+        if span is not None:
+            spans.append((span[0], span[2]))
+            if formats is not None:
+                formats[column] = _format_of(content, span)
+    return without_spans(content, sorted(spans))
+
+
+def _without_blanks(content: bytes, row: int, columns, formats, kept) -> bytes:
+    """A row's cell markup without the cells of ``columns`` that hold nothing (formatted blanks), their formats
+    collected in ``formats``; a cell with content stays (the new cell then meets it: ``NotStreamable``)."""
+    spans = []
+    for column in columns:
+        span = _cell_span(content, row, column)
+        if span is None or content[span[1]: span[2]].removesuffix(b"</c>").strip():
+            continue
+        spans.append((span[0], span[2]))
+        style = _format_of(content, span)
+        formats.setdefault(column, style)
+        if style and kept is not None:
+            kept["blanks"] = kept.get("blanks", 0) + 1
+    return without_spans(content, sorted(spans)) if spans else content
+
+
 def _new_row(edit):
     row, cells, _ = edit  # nothing to take out of a row that is not there
     return b'<row r="%d">' % row + _joined(cells) + b"</row>" if cells else b""
-
-
-def _without_cells(content: bytes, row: int, columns) -> bytes:
-    """A row's cell markup without the cells of ``columns`` (each cell element starts ``<c r="E7"``)."""
-    spans = []
-    for column in columns:
-        start = content.find(b'<c r="%s%d"' % (get_column_letter(column).encode(), row))
-        if start < 0:
-            continue
-        tag_end = content.find(b">", start)
-        if tag_end < 0:
-            raise NotStreamable(f"a cell of row {row} is not closed")
-        if content[tag_end - 1] == ord("/"):
-            end = tag_end + 1
-        else:
-            end = content.find(b"</c>", tag_end)
-            if end < 0:
-                raise NotStreamable(f"a cell of row {row} is not closed")
-            end += len(b"</c>")
-        spans.append((start, end))
-    return without_spans(content, sorted(spans))
 
 
 def _joined(cells):
