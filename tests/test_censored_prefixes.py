@@ -9,13 +9,15 @@ import pytest
 from scipy import optimize, stats
 
 from tailstop.core.models import censored_log_location as log_location
-from tailstop.core.models.censored_prefixes import prefix_fits
+from tailstop.core.models.censored_prefixes import GAMMA_LARGEST_SHAPE, prefix_fits
+from tailstop.core.models.gamma import censored as gamma_censored
 from tailstop.core.rule import boundary_factor
 from tailstop.core.sequential import decision_column
 
 THRESHOLD = 1500.0
-FITS = [("weibull", "fitted-shape", None), ("lognormal", "known-shape", 0.7), ("lognormal", "fitted-shape", None)]
-LAWS = {"weibull": stats.weibull_min, "lognormal": stats.lognorm}
+FITS = [("weibull", "fitted-shape", None), ("lognormal", "known-shape", 0.7), ("lognormal", "fitted-shape", None),
+        ("gamma", "known-shape", 2.4), ("gamma", "known-shape", 0.3), ("gamma", "known-shape", GAMMA_LARGEST_SHAPE)]
+LAWS = {"weibull": stats.weibull_min, "lognormal": stats.lognorm, "gamma": stats.gamma}
 
 
 def _random_pulls(seed, n=1500, share=0.1):
@@ -57,9 +59,19 @@ LOGS = {"random pulls": _random_pulls, "time-terminated": _time_terminated, "hea
 
 def _direct(model, method, shape, times, flags, prefixes, threshold):
     """Each prefix fitted on its own by the censored fit of one log (padded rows, no running sums)."""
-    family = log_location.FAMILIES[model]
     log_t = np.log(times)
     present = np.arange(times.size) < prefixes[:, None]
+    if model == "gamma":
+        failed = present & ~flags
+        failures = (failed.sum(axis=1).astype(float), np.where(failed, times, 0.0).sum(axis=1),
+                    np.where(failed, log_t, 0.0).sum(axis=1))
+        suspensions = (np.broadcast_to(times, present.shape), (present & flags).astype(float))
+        shapes = np.full(prefixes.size, shape)
+        with np.errstate(all="ignore"):
+            log_scale = gamma_censored.fit_known_shape(failures, suspensions, shapes)
+            sigma2 = gamma_censored.sigma2_known_shape(failures, suspensions, shapes, log_scale, threshold, prefixes)
+        return log_scale, np.where(np.isfinite(log_scale), 0.0, np.nan), sigma2
+    family = log_location.FAMILIES[model]
     failures = (np.broadcast_to(log_t, present.shape), (present & ~flags).astype(float))
     suspensions = (np.broadcast_to(log_t, present.shape), (present & flags).astype(float))
     with np.errstate(all="ignore"):

@@ -35,7 +35,7 @@ from .models import MODEL_NAMES, get_model
 from .models.base import ModelFit
 from .models.compare import ModelComparison
 from .models import censored_log_location as _log_location
-from .models.censored_prefixes import prefix_fits
+from .models.censored_prefixes import fits_every_prefix, prefix_fits
 from .models.gamma import censored as _gamma_censored
 from .models.gamma.fit import shape_from_log_ratio
 from .probability import TailProbability
@@ -354,11 +354,11 @@ def censored_paths(times, suspended, threshold, method, shape=None, model="gamma
     if (lifetime.name, method) in _CLOSED_FORMS:
         log_scale, sigma2 = _CLOSED_FORMS[lifetime.name, method](x, flags, prefixes, known, threshold)
         shapes = np.full(x.size, known)
-    elif lifetime.name in _log_location.FAMILIES:
-        family = _log_location.FAMILIES[lifetime.name]
+    elif fits_every_prefix(lifetime.name, method, known):
         fits = prefix_fits(lifetime.name, x, flags, threshold, method, known)
         log_scale, sigma2 = fits.location, fits.sigma2
-        shapes = np.full(x.size, known) if known is not None else family.shape_from_width(np.exp(fits.log_width))
+        shapes = (np.full(x.size, known) if known is not None else
+                  _log_location.FAMILIES[lifetime.name].shape_from_width(np.exp(fits.log_width)))
     else:
         width = max(1, np.unique(x[flags]).size)
         rows = max(1, _RULE_CELLS // width)
@@ -398,14 +398,16 @@ class CensoredRule:
     stops while no unit has failed at or below the threshold or none is seen
     beyond it), the observed-information σ̂² for the parametric methods (the rule
     continues while there are too few failures). The Weibull and lognormal
-    prefixes are fitted all at once around a moving expansion point
-    (``models.censored_prefixes``), Weibull with a known shape from its closed
-    form, gamma check point by check point.
+    prefixes, and the gamma ones with a known shape up to
+    ``censored_prefixes.GAMMA_LARGEST_SHAPE``, are fitted all at once around a
+    moving expansion point (``models.censored_prefixes``), Weibull with a
+    known shape from its closed form, the gamma with its shape fitted check
+    point by check point.
     """
 
     # each censored check point costs a fit over its prefix: start with few of them
     first_chunk = 32
-    # the Weibull and lognormal prefixes are fitted all at once up to these lengths, then the whole log
+    # the prefixes ``censored_prefixes`` fits are fitted all at once up to these lengths, then the whole log
     _PREFIX_LIMITS = (1 << 12, 1 << 16)
 
     def __init__(self, plain, method, model="gamma"):
@@ -428,7 +430,7 @@ class CensoredRule:
             return regularized_sigma2(product_limit(x, flags, threshold, prefixes=n))
         if (self.model, self.method) in _CLOSED_FORMS:
             return _CLOSED_FORMS[self.model, self.method](x, flags, n, float(shape), threshold)[1]
-        if self.model in _log_location.FAMILIES:
+        if fits_every_prefix(self.model, self.method, shape):
             return self._prefixes_up_to(x, flags, int(n.max()), threshold, shape)[n - 1]
         out = np.empty(n.size)
         suspended = np.unique(x[: n.max()][flags[: n.max()]]).size
@@ -441,7 +443,7 @@ class CensoredRule:
         return out
 
     def _prefixes_up_to(self, x, flags, last, threshold, shape):
-        """σ̂² of every prefix of the first L units (Weibull, lognormal), L the next limit at or past ``last``."""
+        """σ̂² of every prefix of the first L units (``prefix_fits``), L the next limit at or past ``last``."""
         if last > self._prefix_limit:
             limit = next((size for size in self._PREFIX_LIMITS if size >= last), x.size)
             limit = min(x.size, max(limit, last))
