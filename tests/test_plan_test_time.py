@@ -99,6 +99,8 @@ def test_a_test_time_below_the_threshold_calibrates_the_simulated_methods_only(c
     out = capsys.readouterr().out
     header = next(line for line in out.splitlines() if line.startswith("calibrated critical value"))
     assert header.split()[3:] == ["known-shape"]
+    # the simulated runs of a censored test are not bounded by an estimate made beforehand, and the page says so
+    assert "except the simulated runs of the test stopped at 700" in out
 
 
 def test_png_with_a_test_time_writes_a_plot(tmp_path, capsys):

@@ -260,10 +260,15 @@ def run(args, out=None, progress_stream=None):
         _plot(args.png, plan, p, results, counts, args.seed, progress_stream,
               (args.accuracy, args.confidence, args.pilot), args.model, args.test_time)
         print(f"\nPlot written to {args.png}", file=out)
+    bound = (f"every computation is bounded to about {operating.COMMAND_SECONDS:g} s by an estimate made "
+             "before it starts")
+    if args.test_time is not None and any(m not in EXACT_METHODS for m in results):
+        bound += (f", except the simulated runs of the test stopped at {args.test_time:g}: each run refits every "
+                  "censored prefix, and their time is not estimated beforehand (fewer --replications or "
+                  "--fitted-replications make them quicker)")
     print(f"\nFigures assume independent units with {args.model} lifetimes at the guessed parameters "
-          "(pass-fail: only the probability). Simulated figures: ± one Monte Carlo standard error; "
-          f"every computation is bounded to about {operating.COMMAND_SECONDS:g} s by an estimate made "
-          "before it starts.", file=out)
+          f"(pass-fail: only the probability). Simulated figures: ± one Monte Carlo standard error; {bound}.",
+          file=out)
     return 0
 
 
