@@ -518,6 +518,21 @@ def test_a_log_grown_long_is_written_again_as_a_stream_and_loses_nothing(tmp_pat
     assert sum(row.count(DECISION_HEADER) for row in top) == 1 and sum(row.count(BLOCK_TITLE) for row in top) == 1
 
 
+def test_a_note_typed_into_the_decision_column_is_named_on_the_run_again(tmp_path, capsys, streaming):
+    path = bearing_log(tmp_path / "bearing.xlsx", average=False)
+    annotate(path, column="C", plan=the_plan(), in_place=True, backup=False)
+    book = openpyxl.load_workbook(path)
+    book[SHEET]["E30"] = "retest on rig 3"  # a remark typed over a decision
+    book.save(path)
+    before = path.read_bytes()
+    code, out, err = run(capsys, path, "--column", "C", *RULE, "--in-place")
+    assert code == 1 and out == "" and path.read_bytes() == before
+    assert ("column E holds the decisions of an earlier run, and 'Bearing test'!E30 now holds a cell of its own "
+            "there") in err and "--into COLUMN" in err
+    code, out, _ = run(capsys, path, "--column", "C", *RULE, "--into", "F", "--out", tmp_path / "elsewhere.xlsx")
+    assert code == 0 and "decision column 'Bearing test'!F" in out
+
+
 def test_a_unit_typed_below_a_live_log_is_decided_and_counted(tmp_path, streaming, capsys):
     from tailstop.workbooks.recalc import recalc
 

@@ -144,9 +144,7 @@ def annotate(source, *, column, plan: RulePlan, sheet=None, out=None, in_place=F
     cached = dict(before.rounded)  # numbers openpyxl would round are stored exactly
     formatted = _formatted_blanks(worksheet)
     earlier = _clear_earlier(worksheet, log)
-    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached,
-                                                  into if into is not None or earlier.decision_column is None
-                                                  else earlier.decision_column, earlier)
+    decision_column, layout, markup, added = _add(worksheet, log, values, analysis, live, cached, into, earlier)
     stored = worksheet._cells
     kept = sum(1 for key in formatted if key[1] == decision_column and key in stored
                and stored[key]._value not in (None, ""))
@@ -209,7 +207,8 @@ def _add(worksheet, log, values, analysis, live, cached, into, earlier):
     content = Occupancy.from_keys([key for key, cell in worksheet._cells.items() if cell._value not in (None, "")],
                                   merged)
     decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into,
-                                                          block_at=earlier.label_column, content=content)
+                                                          block_at=earlier.label_column, content=content,
+                                                          decision_at=earlier.decision_column)
     write_estimate_block(worksheet, layout, log, decision_column, analysis, live=live, cached=cached,
                          source="values computed by tailstop annotate")
     # decision cells can be appended to the end of openpyxl's row markup only where nothing stands to their right

@@ -140,9 +140,9 @@ def annotate_streamed(source: Path, target: Path, *, column, plan, sheet=None, i
     del values
     earlier.release(occupancy)
     earlier.release(content)
-    wanted = into if into is not None or earlier.decision_column is None else earlier.decision_column
-    decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, wanted,
-                                                          block_at=earlier.label_column, content=content)
+    decision_column, label_column, layout = place_columns(log, occupancy, analysis, live, into,
+                                                          block_at=earlier.label_column, content=content,
+                                                          decision_at=earlier.decision_column)
     del occupancy, content
     edit = ss.StylesEdit(styles_xml, BUILTIN_FORMATS_REVERSE, _ExistingFormats(styles_xml))
     block, added, cf = _block_markup(title, log, decision_column, layout, analysis, live, edit)

@@ -170,19 +170,23 @@ def is_decision(value) -> bool:
         value.startswith("=") and "STOP_DECISION(" in value.upper())
 
 
-def place_columns(log, occupancy, analysis, live, into=None, block_at=None, content=None):
+def place_columns(log, occupancy, analysis, live, into=None, block_at=None, content=None, decision_at=None):
     """The decision column, the estimate block's label column and its layout, over no cell that holds anything.
 
     The decision column covers the header row and the log's rows: the column ``into`` names, or the first
     column right of the log free there — with no value or formula there (``content``; a cell that only holds
     a format does not count, and keeps its format). The block takes the first two adjacent columns, at least
     ``BLOCK_GAP`` columns right of the decision column, that hold no cell at all in the block's rows
-    (``occupancy``); ``block_at`` (where an earlier run put it) when it is free there.
+    (``occupancy``); ``block_at`` (where an earlier run put it) when it is free there. Without ``into``, the
+    decision column is ``decision_at`` when an earlier run put it there (refused if it now holds a cell of
+    the user's in those rows).
     """
     rows = (log.first_row - 1, log.last_row)
     taken = occupancy if content is None else content
     if into is not None:
         decision_column = _into_column(log, taken, into, rows)
+    elif decision_at is not None:
+        decision_column = _earlier_column(log, taken, decision_at, rows)
     else:
         decision_column = next((column for column in range(log.column + 1, GRID_COLUMNS + 1)
                                 if taken.free(column, *rows)), None)
@@ -214,6 +218,17 @@ def _into_column(log, occupancy, into, rows):
         raise AnnotateRefused(f"--into {letter}: {sheet_reference(log.sheet_title)}!{letter}{taken} already holds "
                               f"a cell (rows {rows[0]} to {rows[1]} of that column must hold no value or formula); "
                               "choose another column, or leave --into out to take the first free one")
+    return column
+
+
+def _earlier_column(log, taken, column, rows):
+    row = taken.first_taken(column, *rows)
+    if row is not None:
+        letter = get_column_letter(column)
+        raise AnnotateRefused(f"column {letter} holds the decisions of an earlier run, and "
+                              f"{sheet_reference(log.sheet_title)}!{letter}{row} now holds a cell of its own there "
+                              f"(rows {rows[0]} to {rows[1]} of that column are the decisions'); move or clear that "
+                              "cell, or give --into COLUMN to write the decisions elsewhere")
     return column
 
 
