@@ -201,7 +201,8 @@ def test_live_mode_writes_formulas_whose_cached_values_the_engine_reproduces(log
                       out=log_path.with_name("live.xlsx"))
     formulas = openpyxl.load_workbook(result.path)[LOG_SHEET]
     cached = openpyxl.load_workbook(result.path, data_only=True)[LOG_SHEET]
-    assert formulas["G2"].value == '=IF(IFERROR(LEN(TRIM(D2)),1)=0,"",STOP_DECISION($D$2:D2,$K$3,$K$6,$K$7,$K$8,$K$4,$K$5,$K$9,$K$10))'
+    assert formulas["G2"].value == ('=IF(IFERROR(LEN(TRIM(D2)),1)=0,"",'
+                                    'STOP_DECISION($D$2:D2,$K$3,$K$6,$K$7,$K$8,$K$4,$K$5,$K$9,$K$10))')
     assert formulas["K3"].value == THRESHOLD  # the settings are plain inputs
     computed = evaluate_workbook(result.path)
     checked = 0
@@ -557,7 +558,8 @@ def test_a_long_log_goes_through_the_row_markup(tmp_path):
     cached = openpyxl.load_workbook(live.path, data_only=True)[LOG_SHEET]
     stop = rule_stop(lifetimes)
     assert values.cell(stop + 1, 7).value == "STOP" and values.cell(401, 7).value == "PAST STOP"
-    assert formulas["G401"].value == '=IF(IFERROR(LEN(TRIM(D401)),1)=0,"",STOP_DECISION($D$2:D401,$K$3,$K$6,$K$7,$K$8,$K$4,$K$5,$K$9,$K$10))'
+    assert formulas["G401"].value == ('=IF(IFERROR(LEN(TRIM(D401)),1)=0,"",'
+                                      'STOP_DECISION($D$2:D401,$K$3,$K$6,$K$7,$K$8,$K$4,$K$5,$K$9,$K$10))')
     assert cached["G401"].value == "PAST STOP" and cached.cell(stop + 1, 7).value == "STOP"
     assert Path(result.path).stat().st_size > 0
 

@@ -79,6 +79,14 @@ def log_rows(hours):
     return rows
 
 
+def expected_decisions(hours):
+    """(N, the decision of each unit) under the fixture's plan, from the rule written out plainly."""
+    # check value: METHOD.md §5, the pass-fail rule of test_annotate.rule_stop, independent of the package
+    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)
+    return stop, (["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"]
+                  + ["PAST STOP"] * (len(hours) - stop))
+
+
 def the_plan():
     return RulePlan.checked(THRESHOLD, ACCURACY, 0.95, PILOT)
 
@@ -112,8 +120,7 @@ def test_the_header_below_title_rows_is_found(tmp_path, capsys, streaming, colum
     sheet = openpyxl.load_workbook(tmp_path / "bearing-tailstop.xlsx")[SHEET]
     assert sheet["E3"].value == DECISION_HEADER
     rows = log_rows(hours)
-    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
-    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    stop, expected = expected_decisions(hours)
     assert [sheet.cell(row, 5).value for row in rows] == expected
     assert [sheet.cell(row, 5).value for row in (1, 2, 9, 22)] == [None] * 4  # title rows and blank rows
     assert f"decision: STOP at row {rows[stop - 1]}, after {stop} units" in out
@@ -208,8 +215,7 @@ def test_a_column_that_is_only_formatted_takes_the_decisions_and_keeps_its_forma
         assert written["cells"][coordinate][1] == style, coordinate  # read by openpyxl alone (book_contents)
     assert written["widths"][5] == original["widths"][5] == (13, False)
     rows = log_rows(hours)
-    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
-    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    stop, expected = expected_decisions(hours)
     shown = openpyxl.load_workbook(convert_with_libreoffice(annotated, tmp_path / "lo"), data_only=True)
     assert shown_errors(shown) == []
     assert shown[SHEET]["E3"].value == DECISION_HEADER
@@ -384,8 +390,7 @@ def test_rows_added_since_the_last_run_get_their_decisions(tmp_path, streaming, 
     assert (second.decision_column, second.block.split(":")[0]) == (first.decision_column, "I1")
     assert tool_marks(path) == (["E3", "I1"], [f"E4:E{rows[-1] + (LIVE_MARGIN if live else 0)}"])
     shown = openpyxl.load_workbook(path, data_only=True)[SHEET]
-    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
-    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    stop, expected = expected_decisions(hours)
     assert [shown.cell(row, 5).value for row in rows] == expected
     block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
     assert block["Units used, N"] == stop
@@ -454,8 +459,7 @@ def test_a_log_run_again_shows_its_values_in_libreoffice(tmp_path, soffice, stre
     again = annotate(path, column="C", plan=the_plan(), in_place=True, backup=False, live=True)
     shown = openpyxl.load_workbook(convert_with_libreoffice(again.path, tmp_path / "lo"), data_only=True)[SHEET]
     assert shown_errors(shown.parent) == []
-    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
-    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    stop, expected = expected_decisions(hours)
     assert [shown.cell(row, 5).value for row in log_rows(hours)] == expected
     block = {shown.cell(row, 9).value: shown.cell(row, 10).value for row in range(1, 30)}
     assert block["Units used, N"] == stop
@@ -503,8 +507,7 @@ def test_a_log_grown_long_is_written_again_as_a_stream_and_loses_nothing(tmp_pat
     assert (again.decision_column, again.block) == (first.decision_column, first.block)
     sheet = openpyxl.load_workbook(path, read_only=True)[SHEET]
     decisions = [row[0] for row in sheet.iter_rows(min_row=FIRST_ROW, min_col=5, max_col=5, values_only=True)]
-    stop = rule_stop(hours, THRESHOLD, ACCURACY, 0.95, PILOT)  # the rule written out plainly (METHOD.md §5)
-    expected = ["PILOT"] * (PILOT - 1) + ["CONTINUE"] * (stop - PILOT) + ["STOP"] + ["PAST STOP"] * (len(hours) - stop)
+    stop, expected = expected_decisions(hours)
     assert [decisions[row - FIRST_ROW] for row in log_rows(hours)] == expected
     assert decisions.count(None) == len(BLANK_AFTER) and len(decisions) == len(hours) + len(BLANK_AFTER)
     low, _, high, _ = range_boundaries(again.block)

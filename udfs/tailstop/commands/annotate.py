@@ -125,8 +125,9 @@ def summary(result) -> str:
     mode = "tailstop formulas with cached values" if result.live else "values"
     lines.append(f"  wrote: decision column {column} ({DECISION_HEADER!r}), estimate block {result.block}, as {mode}")
     if result.formats_kept:
-        lines.append(f"  kept: the format already on {result.formats_kept} cell{'s' if result.formats_kept != 1 else ''} "
-                     "of the decision column (they held no value), under the decisions written there")
+        cells = f"{result.formats_kept} cell{'s' if result.formats_kept != 1 else ''}"
+        lines.append(f"  kept: the format already on {cells} of the decision column (they held no value), under "
+                     "the decisions written there")
     if result.copied_parts is None:
         lines.append(f"  checked: all {result.cells_checked:,} cells of {result.sheets_checked} sheet"
                      f"{'s' if result.sheets_checked != 1 else ''} kept their values and formulas")
