@@ -25,8 +25,9 @@ def add_arguments(parser):
                         help="the row holding the log's headers (default: the last text above the column's first "
                              "value; title rows and blank rows may stand above it)")
     parser.add_argument("--into", metavar="COLUMN",
-                        help="the column for the decisions (default: the first column right of the log with "
-                             "nothing in the log's rows); never a column holding anything there")
+                        help="the column for the decisions (default: where an earlier run put them, else the "
+                             "first column right of the log with no value or formula in the log's rows; a format "
+                             "there is kept); never a column holding a value or formula there")
     parser.add_argument("--threshold", required=True, help="the threshold c (mission time, warranty limit), "
                                                            "in the unit of the lifetimes")
     parser.add_argument("--accuracy", required=True, help="odds to be known within this factor d > 1, e.g. 1.5")
