@@ -250,6 +250,20 @@ def test_tuning_is_cached_on_disk_and_in_memory(monkeypatch):
     assert guaranteed.tuning(3.0, 0.9, 2) is again  # from memory now
 
 
+def _tuned_again(monkeypatch):
+    """The tuning of (3, 0.9, 2) asked for again from a cold memory cache, with the calls to tune counted."""
+    guaranteed.clear_memory_cache()
+    calls = []
+    original = guaranteed.tune
+
+    def counted(*args):
+        calls.append(args)
+        return original(*args)
+
+    monkeypatch.setattr(guaranteed, "tune", counted)
+    return guaranteed.tuning(3.0, 0.9, 2), calls
+
+
 @pytest.mark.parametrize("damage", ["value", "hash", "garbage"])
 def test_a_damaged_cache_is_recomputed(monkeypatch, damage):
     first = guaranteed.tuning(3.0, 0.9, 2)
@@ -264,16 +278,7 @@ def test_a_damaged_cache_is_recomputed(monkeypatch, damage):
         else:
             entry["sha256"] = "0" * 64
         path.write_text(json.dumps(content))
-    guaranteed.clear_memory_cache()
-    calls = []
-    original = guaranteed.tune
-
-    def counted(*args):
-        calls.append(args)
-        return original(*args)
-
-    monkeypatch.setattr(guaranteed, "tune", counted)
-    again = guaranteed.tuning(3.0, 0.9, 2)
+    again, calls = _tuned_again(monkeypatch)
     assert len(calls) == 1
     assert again.factor == first.factor
     content = json.loads(path.read_text())
@@ -293,16 +298,7 @@ def test_a_signed_but_impossible_record_is_recomputed(monkeypatch, field, value)
     entry["record"][field] = value
     entry["sha256"] = tuning_cache._digest(entry["record"])
     path.write_text(json.dumps(content))
-    guaranteed.clear_memory_cache()
-    calls = []
-    original = guaranteed.tune
-
-    def counted(*args):
-        calls.append(args)
-        return original(*args)
-
-    monkeypatch.setattr(guaranteed, "tune", counted)
-    again = guaranteed.tuning(3.0, 0.9, 2)
+    again, calls = _tuned_again(monkeypatch)
     assert len(calls) == 1
     assert (again.factor, again.boundary, again.p_low) == (first.factor, first.boundary, first.p_low)
 
